@@ -1,0 +1,538 @@
+"""Reading the ``sitepace.network/1`` document into a checked :class:`Network`.
+
+Every field is checked and every problem is collected, each with a JSON
+pointer to its entry, before the structural checks of
+:func:`~.network.build_network` add theirs; one answer lists everything.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from collections.abc import Mapping
+from typing import Any
+
+from .calendars import WEEKDAYS, WorkCalendar
+from .network import (
+    MAX_LAG,
+    NO_DATE,
+    RELATION_TYPES,
+    Crew,
+    Network,
+    build_network,
+)
+from .problems import NetworkInvalid, Problem, pointer
+
+FORMAT = "sitepace.network/1"
+LAG_UNITS = ("workdays", "calendar_days")
+
+_TOP = {
+    "format",
+    "scenario",
+    "project",
+    "calendars",
+    "crews",
+    "activities",
+    "relations",
+}
+_PROJECT = {"name", "start", "calendar", "data_date", "deadline"}
+_CALENDAR = {"key", "name", "workdays", "holidays", "extra_workdays"}
+_CREW = {"key", "name", "capacity", "calendar", "unavailable"}
+_ACTIVITY = {
+    "key",
+    "name",
+    "duration",
+    "calendar",
+    "demands",
+    "not_before",
+    "deadline",
+    "actual_start",
+    "actual_finish",
+    "remaining",
+    "percent_complete",
+    "zone",
+    "trade",
+    "milestone",
+    "planned_value",
+    "quantity",
+    "unit",
+}
+_PROGRESS = ("actual_start", "actual_finish", "remaining", "percent_complete")
+_EXTRAS = ("zone", "trade", "planned_value", "quantity", "unit")
+_RELATION = {"pred", "succ", "type", "lag", "lag_unit"}
+
+
+class _Reader:
+    def __init__(self) -> None:
+        self.problems: list[Problem] = []
+
+    def problem(self, ptr: str, code: str, message: str) -> None:
+        self.problems.append(Problem(ptr, code, message))
+
+    def unknown_fields(
+        self, entry: Mapping[str, Any], allowed: set[str], ptr: str, what: str
+    ) -> None:
+        for name in sorted(set(entry) - allowed):
+            self.problem(
+                pointer(*_parts(ptr), name),
+                "unknown_field",
+                f"{what}: unknown field {name!r}",
+            )
+
+    def obj(self, value: Any, ptr: str, what: str) -> Mapping[str, Any] | None:
+        if not isinstance(value, Mapping):
+            self.problem(ptr, "wrong_type", f"{what} must be an object")
+            return None
+        return value
+
+    def array(self, value: Any, ptr: str, what: str) -> list[Any]:
+        if value is None:
+            return []
+        if not isinstance(value, list):
+            self.problem(ptr, "wrong_type", f"{what} must be a list")
+            return []
+        return value
+
+    def text(
+        self, value: Any, ptr: str, what: str, *, required: bool = True
+    ) -> str | None:
+        if value is None and not required:
+            return None
+        if not isinstance(value, str) or not value.strip():
+            self.problem(ptr, "wrong_type", f"{what} must be a non-empty text")
+            return None
+        if len(value) > 200:
+            self.problem(ptr, "too_long", f"{what} is longer than 200 characters")
+            return None
+        return value
+
+    def date(
+        self, value: Any, ptr: str, what: str, *, required: bool = False
+    ) -> dt.date | None:
+        if value is None:
+            if required:
+                self.problem(ptr, "missing", f"{what} is required (YYYY-MM-DD)")
+            return None
+        if isinstance(value, str) and len(value) == 10:
+            try:
+                day = dt.date.fromisoformat(value)
+            except ValueError:
+                pass
+            else:
+                if 1900 <= day.year <= 2999:
+                    return day
+                self.problem(
+                    ptr,
+                    "date_out_of_range",
+                    f"{what}: {value} is not between 1900 and 2999",
+                )
+                return None
+        self.problem(
+            ptr, "bad_date", f"{what}: {value!r} is not a date of the form YYYY-MM-DD"
+        )
+        return None
+
+    def integer(
+        self, value: Any, ptr: str, what: str, low: int, high: int, *, unit: str = ""
+    ) -> int | None:
+        if isinstance(value, bool) or not isinstance(value, int):
+            if isinstance(value, float) and value.is_integer():
+                value = int(value)
+            else:
+                self.problem(
+                    ptr,
+                    "not_integer",
+                    f"{what} must be a whole number{unit}, got {value!r}",
+                )
+                return None
+        if not low <= value <= high:
+            code = "negative" if value < 0 <= low else "out_of_range"
+            self.problem(
+                ptr, code, f"{what} must be {low} to {high}{unit}, got {value}"
+            )
+            return None
+        return int(value)
+
+
+def _parts(ptr: str) -> list[str]:
+    return [p.replace("~1", "/").replace("~0", "~") for p in ptr.split("/")[1:]]
+
+
+def parse_network(document: Any) -> Network:
+    """Check a ``sitepace.network/1`` document and return the :class:`Network`.
+
+    Raises :class:`NetworkInvalid` with every problem found (fields, keys,
+    dates, relations, loops), each naming its entry.
+    """
+    r = _Reader()
+    doc = r.obj(document, "", "the network document")
+    if doc is None:
+        raise NetworkInvalid(r.problems)
+    if doc.get("format") != FORMAT:
+        r.problem(
+            "/format",
+            "wrong_format",
+            f"format must be {FORMAT!r}, got {doc.get('format')!r}",
+        )
+    r.unknown_fields(doc, _TOP, "", "the network document")
+
+    project = r.obj(doc.get("project"), "/project", "project") or {}
+    r.unknown_fields(project, _PROJECT, "/project", "project")
+    name = r.text(project.get("name"), "/project/name", "project name") or ""
+    start = r.date(
+        project.get("start"), "/project/start", "project start", required=True
+    )
+    data_date = r.date(
+        project.get("data_date"), "/project/data_date", "project data date"
+    )
+    deadline = r.date(project.get("deadline"), "/project/deadline", "project deadline")
+    if start and deadline and deadline < start:
+        r.problem(
+            "/project/deadline",
+            "deadline_before_start",
+            "project deadline is before the project start",
+        )
+    if start and data_date and data_date < start:
+        r.problem(
+            "/project/data_date",
+            "data_date_before_start",
+            "project data date is before the project start",
+        )
+
+    calendars: list[WorkCalendar] = []
+    cal_index: dict[str, int] = {}
+    for i, raw in enumerate(r.array(doc.get("calendars"), "/calendars", "calendars")):
+        ptr = pointer("calendars", i)
+        entry = r.obj(raw, ptr, f"calendar #{i}")
+        if entry is None:
+            continue
+        key = r.text(entry.get("key"), ptr + "/key", f"calendar #{i} key")
+        label = f"calendar {key or '#' + str(i)}"
+        r.unknown_fields(entry, _CALENDAR, ptr, label)
+        days = r.array(entry.get("workdays"), ptr + "/workdays", f"{label}: workdays")
+        for j, day in enumerate(days):
+            if day not in WEEKDAYS:
+                r.problem(
+                    pointer("calendars", i, "workdays", j),
+                    "bad_weekday",
+                    f"{label}: {day!r} is not one of {', '.join(WEEKDAYS)}",
+                )
+        hol = _dates(r, entry.get("holidays"), ptr, "holidays", label)
+        extra = _dates(r, entry.get("extra_workdays"), ptr, "extra_workdays", label)
+        for both in sorted(hol & extra):
+            r.problem(
+                ptr + "/extra_workdays",
+                "holiday_and_workday",
+                f"{label}: {both} is both a holiday and an extra working day",
+            )
+        if key is None:
+            continue
+        if key in cal_index:
+            r.problem(ptr + "/key", "duplicate_key", f"calendar {key} is defined twice")
+            continue
+        cal_index[key] = len(calendars)
+        calendars.append(
+            WorkCalendar.from_names(key, [d for d in days if d in WEEKDAYS], hol, extra)
+        )
+
+    def calendar_ref(
+        value: Any, ptr: str, what: str, default: int | None
+    ) -> int | None:
+        if value is None:
+            return default
+        if value not in cal_index:
+            r.problem(
+                ptr, "unknown_calendar", f"{what}: calendar {value!r} is not defined"
+            )
+            return None
+        return cal_index[value]
+
+    if not calendars:
+        r.problem("/calendars", "no_calendars", "the network defines no calendar")
+    project_cal = calendar_ref(
+        project.get("calendar"), "/project/calendar", "project", 0
+    )
+    if project.get("calendar") is None and calendars:
+        r.problem("/project/calendar", "missing", "project calendar is required")
+
+    crews: list[Crew] = []
+    crew_index: dict[str, int] = {}
+    for i, raw in enumerate(r.array(doc.get("crews"), "/crews", "crews")):
+        ptr = pointer("crews", i)
+        entry = r.obj(raw, ptr, f"crew #{i}")
+        if entry is None:
+            continue
+        key = r.text(entry.get("key"), ptr + "/key", f"crew #{i} key")
+        label = f"crew {key or '#' + str(i)}"
+        r.unknown_fields(entry, _CREW, ptr, label)
+        cname = r.text(
+            entry.get("name"), ptr + "/name", f"{label}: name", required=False
+        )
+        capacity = r.integer(
+            entry.get("capacity"), ptr + "/capacity", f"{label}: capacity", 1, 10_000
+        )
+        ccal = calendar_ref(
+            entry.get("calendar"), ptr + "/calendar", label, project_cal
+        )
+        away = []
+        for j, period in enumerate(
+            r.array(
+                entry.get("unavailable"), ptr + "/unavailable", f"{label}: unavailable"
+            )
+        ):
+            pptr = pointer("crews", i, "unavailable", j)
+            pe = r.obj(period, pptr, f"{label}: unavailable period #{j}")
+            if pe is None:
+                continue
+            r.unknown_fields(
+                pe, {"from", "to", "capacity"}, pptr, f"{label}: unavailable period"
+            )
+            a = r.date(
+                pe.get("from"),
+                pptr + "/from",
+                f"{label}: unavailable from",
+                required=True,
+            )
+            b = r.date(
+                pe.get("to"), pptr + "/to", f"{label}: unavailable to", required=True
+            )
+            if a and b and b < a:
+                r.problem(
+                    pptr + "/to",
+                    "period_reversed",
+                    f"{label}: unavailable period ends before it begins",
+                )
+            elif a and b:
+                away.append((a, b))
+        if key is None:
+            continue
+        if key in crew_index:
+            r.problem(ptr + "/key", "duplicate_key", f"crew {key} is defined twice")
+            continue
+        crew_index[key] = len(crews)
+        crews.append(Crew(key, cname or key, capacity or 1, ccal or 0, tuple(away)))
+
+    keys: list[str] = []
+    names: list[str] = []
+    durations: list[int] = []
+    act_cals: list[int] = []
+    not_before: list[int] = []
+    act_deadline: list[int] = []
+    extras: list[dict[str, object]] = []
+    dem_a: list[int] = []
+    dem_c: list[int] = []
+    dem_u: list[int] = []
+    warnings: list[Problem] = []
+    act_index: dict[str, int] = {}
+
+    def day_offset(day: dt.date | None) -> int:
+        return NO_DATE if day is None or start is None else (day - start).days
+
+    for i, raw in enumerate(
+        r.array(doc.get("activities"), "/activities", "activities")
+    ):
+        ptr = pointer("activities", i)
+        entry = r.obj(raw, ptr, f"activity #{i}")
+        key = (
+            r.text(entry.get("key"), ptr + "/key", f"activity #{i} key")
+            if entry is not None
+            else None
+        )
+        if key and key in act_index:
+            r.problem(
+                ptr + "/key",
+                "duplicate_key",
+                f"activity {key} is defined twice "
+                f"(first at {pointer('activities', act_index[key])})",
+            )
+        elif key:
+            act_index[key] = i
+        label = f"activity {key or '#' + str(i)}"
+        entry = entry or {}
+        r.unknown_fields(entry, _ACTIVITY, ptr, label)
+        aname = r.text(
+            entry.get("name"), ptr + "/name", f"{label}: name", required=False
+        )
+        dur = r.integer(
+            entry.get("duration"),
+            ptr + "/duration",
+            f"{label}: duration",
+            0,
+            10_000,
+            unit=" of working days",
+        )
+        acal = calendar_ref(
+            entry.get("calendar"), ptr + "/calendar", label, project_cal
+        )
+        nb = r.date(
+            entry.get("not_before"), ptr + "/not_before", f"{label}: not_before"
+        )
+        dl = r.date(entry.get("deadline"), ptr + "/deadline", f"{label}: deadline")
+        for name_ in ("actual_start", "actual_finish"):
+            r.date(entry.get(name_), f"{ptr}/{name_}", f"{label}: {name_}")
+        if entry.get("remaining") is not None:
+            r.integer(
+                entry["remaining"],
+                ptr + "/remaining",
+                f"{label}: remaining",
+                0,
+                10_000,
+                unit=" of working days",
+            )
+        if entry.get("percent_complete") is not None:
+            r.integer(
+                entry["percent_complete"],
+                ptr + "/percent_complete",
+                f"{label}: percent_complete",
+                0,
+                100,
+            )
+        if entry.get("milestone") is not None and not isinstance(
+            entry.get("milestone"), bool
+        ):
+            r.problem(
+                ptr + "/milestone",
+                "wrong_type",
+                f"{label}: milestone must be true or false",
+            )
+        elif entry.get("milestone") and dur not in (None, 0):
+            r.problem(
+                ptr + "/duration",
+                "milestone_duration",
+                f"{label}: a milestone has duration 0",
+            )
+        for name_ in _PROGRESS:
+            if entry.get(name_) is not None:
+                warnings.append(
+                    Problem(
+                        f"{ptr}/{name_}",
+                        "progress_not_applied",
+                        f"{label}: {name_} is not applied by this critical path; "
+                        "the activity is scheduled as not yet started",
+                    )
+                )
+                break
+        demands = entry.get("demands") or {}
+        if not isinstance(demands, Mapping):
+            r.problem(
+                ptr + "/demands",
+                "wrong_type",
+                f"{label}: demands must map crew keys to numbers",
+            )
+            demands = {}
+        for crew_key, units in demands.items():
+            dptr = pointer("activities", i, "demands", crew_key)
+            if crew_key not in crew_index:
+                r.problem(
+                    dptr, "unknown_crew", f"{label}: crew {crew_key!r} is not defined"
+                )
+                continue
+            u = r.integer(
+                units, dptr, f"{label}: demand for crew {crew_key}", 1, 10_000
+            )
+            if u is not None:
+                dem_a.append(i)
+                dem_c.append(crew_index[crew_key])
+                dem_u.append(u)
+        keys.append(key or f"#{i}")
+        names.append(aname or key or f"#{i}")
+        durations.append(dur if dur is not None else 0)
+        act_cals.append(acal if acal is not None else 0)
+        not_before.append(day_offset(nb))
+        act_deadline.append(day_offset(dl))
+        extras.append({k: entry[k] for k in _EXTRAS if entry.get(k) is not None})
+
+    preds: list[int] = []
+    succs: list[int] = []
+    types: list[int] = []
+    lags: list[int] = []
+    caldays: list[bool] = []
+    rel_ptrs: list[str] = []
+    for i, raw in enumerate(r.array(doc.get("relations"), "/relations", "relations")):
+        ptr = pointer("relations", i)
+        entry = r.obj(raw, ptr, f"relation #{i}")
+        if entry is None:
+            continue
+        label = f"relation {entry.get('pred')!s} → {entry.get('succ')!s}"
+        r.unknown_fields(entry, _RELATION, ptr, label)
+        ends = []
+        for end in ("pred", "succ"):
+            value = entry.get(end)
+            if not isinstance(value, str) or value not in act_index:
+                r.problem(
+                    f"{ptr}/{end}",
+                    "unknown_activity",
+                    f"{label}: activity {value!r} is not defined",
+                )
+            ends.append(act_index.get(value) if isinstance(value, str) else None)
+        rtype = entry.get("type", "FS")
+        if rtype not in RELATION_TYPES:
+            r.problem(
+                ptr + "/type",
+                "unknown_relation_type",
+                f"{label}: type {rtype!r} is not FS, SS, FF or SF",
+            )
+        unit = entry.get("lag_unit", "workdays") or "workdays"
+        if unit not in LAG_UNITS:
+            r.problem(
+                ptr + "/lag_unit",
+                "unknown_lag_unit",
+                f"{label}: lag_unit {unit!r} is not workdays or calendar_days",
+            )
+        lag = r.integer(
+            entry.get("lag", 0) or 0,
+            ptr + "/lag",
+            f"{label}: lag",
+            -MAX_LAG,
+            MAX_LAG,
+            unit=" days",
+        )
+        pred_i, succ_i = ends
+        if pred_i is None or succ_i is None or rtype not in RELATION_TYPES:
+            continue
+        if lag is None:
+            continue
+        preds.append(pred_i)
+        succs.append(succ_i)
+        types.append(RELATION_TYPES.index(rtype))
+        lags.append(lag)
+        caldays.append(unit == "calendar_days")
+        rel_ptrs.append(ptr)
+
+    if r.problems and (start is None or not calendars):
+        raise NetworkInvalid(r.problems)
+    return build_network(
+        name=name,
+        start=start or dt.date(2000, 1, 1),
+        calendars=calendars,
+        calendar=project_cal or 0,
+        keys=keys,
+        names=names,
+        duration=durations,
+        act_calendar=act_cals,
+        not_before=not_before,
+        act_deadline=act_deadline,
+        deadline=deadline,
+        data_date=data_date,
+        crews=crews,
+        dem_activity=dem_a,
+        dem_crew=dem_c,
+        dem_units=dem_u,
+        rel_pred=preds,
+        rel_succ=succs,
+        rel_type=types,
+        rel_lag=lags,
+        rel_calendar_days=caldays,
+        rel_pointers=rel_ptrs,
+        extras=extras,
+        warnings=warnings,
+        problems=r.problems,
+    )
+
+
+def _dates(r: _Reader, value: Any, ptr: str, field: str, label: str) -> set[dt.date]:
+    out = set()
+    for j, raw in enumerate(r.array(value, f"{ptr}/{field}", f"{label}: {field}")):
+        day = r.date(raw, f"{ptr}/{field}/{j}", f"{label}: {field}")
+        if day:
+            out.add(day)
+    return out
