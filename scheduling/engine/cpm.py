@@ -27,6 +27,7 @@ import numpy as np
 
 from .calendars import CalendarTables, days_needed
 from .network import FF, FS, NO_DATE, RELATION_TYPES, SF, Network
+from .problems import NetworkInvalid, Problem
 
 
 @dataclass(frozen=True, slots=True)
@@ -129,18 +130,29 @@ def critical_path(network: Network) -> CpmResult:
     """
     plan = _Plan(network)
     left, right = plan.initial_extent()
+    # Python dates end with the year 9999; the tables never reach past it.
+    most_left = (network.start - dt.date(1, 1, 2)).days
+    most_right = (dt.date(9999, 12, 30) - network.start).days
+    left, right = min(left, most_left), min(right, most_right)
     while True:
         try:
             return plan.run(left, right)
         except (_Grow, IndexError) as grow:
             grow_left = not isinstance(grow, _Grow) or grow.left
             grow_right = not isinstance(grow, _Grow) or grow.right
-            left = left * 2 if grow_left else left
-            right = right * 2 if grow_right else right
-            if left + right > 4_000_000:
-                raise OverflowError(
-                    "the network spans more than 10,000 years"
+            if (grow_left and left == most_left) or (grow_right and right == most_right):
+                raise NetworkInvalid(
+                    [
+                        Problem(
+                            "/activities",
+                            "schedule_too_long",
+                            "the schedule would run beyond the year 9999; check "
+                            "the durations, lags and dates",
+                        )
+                    ]
                 ) from None
+            left = min(left * 2, most_left) if grow_left else left
+            right = min(right * 2, most_right) if grow_right else right
 
 
 class _Plan:

@@ -163,3 +163,13 @@ def test_progress_fields_give_a_warning_not_an_error():
         doc([{"key": "A", "duration": 2, "actual_start": "2027-03-01"}])
     )
     assert [w.code for w in net.warnings] == ["progress_not_applied"]
+
+
+def test_a_schedule_past_the_year_9999_is_refused_not_crashed():
+    from scheduling.engine import critical_path
+
+    acts = [(f"A{i}", 10_000) for i in range(300)]
+    rels = [(f"A{i}", f"A{i + 1}") for i in range(299)]
+    net = parse_network(doc(acts, rels))
+    with pytest.raises(NetworkInvalid, match="beyond the year 9999"):
+        critical_path(net)
