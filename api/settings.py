@@ -1,0 +1,131 @@
+"""Settings, read from the environment.
+
+The embedded default needs nothing set: SQLite under ``var/`` and a Celery
+broker on the local file system. Production sets ``SECRET_KEY``,
+``ALLOWED_HOSTS``, ``DATABASE_URL`` (PostgreSQL) and ``CELERY_BROKER_URL``
+(Redis).
+"""
+
+import os
+import secrets
+from pathlib import Path
+
+import dj_database_url
+from django.core.exceptions import ImproperlyConfigured
+
+BASE_DIR = Path(__file__).resolve().parent.parent
+VAR_DIR = Path(os.environ.get("SITEPACE_VAR_DIR", BASE_DIR / "var"))
+VAR_DIR.mkdir(parents=True, exist_ok=True)
+
+
+def _flag(name: str, default: bool = False) -> bool:
+    value = os.environ.get(name)
+    if value is None:
+        return default
+    return value.strip().lower() in {"1", "true", "yes", "on"}
+
+
+def _local_secret_key() -> str:
+    """A key made once per installation for the embedded default; never committed."""
+    path = VAR_DIR / "secret_key"
+    if not path.exists():
+        path.write_text(secrets.token_urlsafe(50))
+        path.chmod(0o600)
+    return path.read_text().strip()
+
+
+DEBUG = _flag("DEBUG")
+SECRET_KEY = os.environ.get("SECRET_KEY") or _local_secret_key()
+ALLOWED_HOSTS = [
+    h.strip()
+    for h in os.environ.get("ALLOWED_HOSTS", "localhost,127.0.0.1").split(",")
+    if h.strip()
+]
+if "*" in ALLOWED_HOSTS:
+    raise ImproperlyConfigured("ALLOWED_HOSTS must name the hosts; '*' is refused")
+
+INSTALLED_APPS = [
+    "django.contrib.admin",
+    "django.contrib.auth",
+    "django.contrib.contenttypes",
+    "django.contrib.sessions",
+    "django.contrib.messages",
+    "django.contrib.staticfiles",
+    "rest_framework",
+    "drf_spectacular",
+    "scheduling",
+    "frontend",
+]
+
+MIDDLEWARE = [
+    "django.middleware.security.SecurityMiddleware",
+    "django.contrib.sessions.middleware.SessionMiddleware",
+    "django.middleware.common.CommonMiddleware",
+    "django.middleware.csrf.CsrfViewMiddleware",
+    "django.contrib.auth.middleware.AuthenticationMiddleware",
+    "django.contrib.messages.middleware.MessageMiddleware",
+    "django.middleware.clickjacking.XFrameOptionsMiddleware",
+]
+
+ROOT_URLCONF = "api.urls"
+WSGI_APPLICATION = "api.wsgi.application"
+
+TEMPLATES = [
+    {
+        "BACKEND": "django.template.backends.django.DjangoTemplates",
+        "DIRS": [],
+        "APP_DIRS": True,
+        "OPTIONS": {
+            "context_processors": [
+                "django.template.context_processors.request",
+                "django.contrib.auth.context_processors.auth",
+                "django.contrib.messages.context_processors.messages",
+            ],
+        },
+    },
+]
+
+DATABASES = {
+    "default": dj_database_url.parse(
+        os.environ.get("DATABASE_URL", f"sqlite:///{VAR_DIR / 'sitepace.sqlite3'}"),
+        conn_max_age=int(os.environ.get("DATABASE_CONN_MAX_AGE", "60")),
+    )
+}
+DEFAULT_AUTO_FIELD = "django.db.models.BigAutoField"
+
+AUTH_PASSWORD_VALIDATORS = [
+    {"NAME": "django.contrib.auth.password_validation.MinimumLengthValidator"},
+    {"NAME": "django.contrib.auth.password_validation.CommonPasswordValidator"},
+]
+
+LANGUAGE_CODE = "en"
+TIME_ZONE = "UTC"
+USE_I18N = True
+USE_TZ = True
+STATIC_URL = "static/"
+STATIC_ROOT = VAR_DIR / "static"
+
+REST_FRAMEWORK = {
+    "DEFAULT_SCHEMA_CLASS": "drf_spectacular.openapi.AutoSchema",
+}
+SPECTACULAR_SETTINGS = {
+    "TITLE": "Sitepace API",
+    "VERSION": "1",
+}
+
+# Celery: Redis in production; the embedded default uses kombu's file-system
+# transport, which needs no server.
+_broker_dir = VAR_DIR / "celery"
+CELERY_BROKER_URL = os.environ.get("CELERY_BROKER_URL", "filesystem://")
+if CELERY_BROKER_URL.startswith("filesystem://"):
+    for sub in ("queue", "processed"):
+        (_broker_dir / sub).mkdir(parents=True, exist_ok=True)
+    CELERY_BROKER_TRANSPORT_OPTIONS = {
+        "data_folder_in": str(_broker_dir / "queue"),
+        "data_folder_out": str(_broker_dir / "queue"),
+        "processed_folder": str(_broker_dir / "processed"),
+        "store_processed": False,
+    }
+CELERY_TASK_SERIALIZER = "json"
+CELERY_ACCEPT_CONTENT = ["json"]
+CELERY_TIMEZONE = "UTC"

@@ -1,0 +1,7 @@
+from django.apps import AppConfig
+
+
+class FrontendConfig(AppConfig):
+    default_auto_field = "django.db.models.BigAutoField"
+    name = "frontend"
+    verbose_name = "Pages"

@@ -1,0 +1,7 @@
+from django.apps import AppConfig
+
+
+class SchedulingConfig(AppConfig):
+    default_auto_field = "django.db.models.BigAutoField"
+    name = "scheduling"
+    verbose_name = "Scheduling"

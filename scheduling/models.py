@@ -1,0 +1,1 @@
+"""Stored projects come with the REST API; the engine needs no tables yet."""

@@ -1,0 +1,123 @@
+"""The Django shell around the engine: health, settings, the command line."""
+
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+from django.conf import settings
+from django.core.management import call_command
+
+ROOT = Path(__file__).resolve().parents[1]
+
+TINY = {
+    "format": "sitepace.network/1",
+    "project": {"name": "Shed", "start": "2027-03-01", "calendar": "weekdays"},
+    "calendars": [{"key": "weekdays", "workdays": ["mon", "tue", "wed", "thu", "fri"]}],
+    "activities": [
+        {"key": "BASE", "duration": 3},
+        {"key": "WALLS", "duration": 4},
+        {"key": "DONE", "duration": 0},
+    ],
+    "relations": [
+        {
+            "pred": "BASE",
+            "succ": "WALLS",
+            "type": "FS",
+            "lag": 2,
+            "lag_unit": "calendar_days",
+        },
+        {"pred": "WALLS", "succ": "DONE"},
+    ],
+}
+
+
+def manage(*args, stdin=None):
+    return subprocess.run(
+        [sys.executable, "manage.py", *args],
+        cwd=ROOT,
+        input=stdin,
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
+
+
+@pytest.mark.django_db
+def test_healthz_answers_ok(client):
+    response = client.get("/healthz")
+    assert response.status_code == 200
+    assert response.json() == {"status": "ok"}
+
+
+def test_allowed_hosts_are_named_not_wildcard():
+    assert "*" not in settings.ALLOWED_HOSTS
+
+
+def test_schedule_command_writes_the_schedule_document(tmp_path):
+    src = tmp_path / "shed.json"
+    src.write_text(json.dumps(TINY))
+    out = manage("schedule", str(src))
+    assert out.returncode == 0, out.stderr
+    doc = json.loads(out.stdout)
+    assert doc["format"] == "sitepace.schedule/1"
+    # BASE Mon 1–Wed 3; +2 calendar days from Thu 4 → Sat 6 → Mon 8; WALLS Mon
+    # 8–Thu 11; DONE is the point at the start of Friday 12.
+    walls = next(a for a in doc["activities"] if a["key"] == "WALLS")
+    assert (walls["early_start"], walls["early_finish"]) == ("2027-03-08", "2027-03-11")
+    assert doc["project"]["finish"] == "2027-03-12"
+    assert "caution" in doc
+
+    target = tmp_path / "out.json"
+    out = manage("schedule", str(src), "--output", str(target))
+    assert out.returncode == 0 and out.stdout == ""
+    assert json.loads(target.read_text()) == doc
+
+
+def test_schedule_command_reads_stdin():
+    out = manage("schedule", "-", stdin=json.dumps(TINY))
+    assert out.returncode == 0, out.stderr
+    assert json.loads(out.stdout)["project"]["name"] == "Shed"
+
+
+def test_bad_network_exits_2_listing_every_problem_without_traceback(tmp_path):
+    bad = json.loads(json.dumps(TINY))
+    bad["activities"][1]["duration"] = -4
+    bad["relations"].append({"pred": "DONE", "succ": "BASE"})
+    src = tmp_path / "bad.json"
+    src.write_text(json.dumps(bad))
+    target = tmp_path / "never.json"
+    out = manage("schedule", str(src), "--output", str(target))
+    assert out.returncode == 2
+    assert "2 problems" in out.stderr
+    assert "/activities/1/duration: activity WALLS: duration" in out.stderr
+    assert "BASE → WALLS → DONE → BASE" in out.stderr
+    assert "Traceback" not in out.stderr
+    assert not target.exists()
+
+
+def test_malformed_json_names_line_and_column(tmp_path):
+    src = tmp_path / "broken.json"
+    src.write_text('{\n  "format": "sitepace.network/1",\n  "project": [}\n')
+    out = manage("schedule", str(src))
+    assert out.returncode == 2
+    assert "line 3, column 15" in out.stderr
+    assert "Traceback" not in out.stderr
+
+
+def test_missing_file_exits_2():
+    out = manage("schedule", "no/such/file.json")
+    assert out.returncode == 2
+    assert "cannot read no/such/file.json" in out.stderr
+
+
+def test_demo_check_prints_finish_path_crews_and_caution(capsys):
+    call_command("demo", "--check")
+    text = capsys.readouterr().out
+    assert "Finish:" in text
+    assert "Driving path to the finish" in text
+    assert "M-HANDOVER" in text
+    assert "Crews at early dates" in text
+    assert "competent person" in text
+    assert text.rstrip().endswith("demo check: ok")
