@@ -140,7 +140,9 @@ def critical_path(network: Network) -> CpmResult:
         except (_Grow, IndexError) as grow:
             grow_left = not isinstance(grow, _Grow) or grow.left
             grow_right = not isinstance(grow, _Grow) or grow.right
-            if (grow_left and left == most_left) or (grow_right and right == most_right):
+            if (grow_left and left == most_left) or (
+                grow_right and right == most_right
+            ):
                 raise NetworkInvalid(
                     [
                         Problem(
