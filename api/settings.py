@@ -52,13 +52,17 @@ INSTALLED_APPS = [
     "django.contrib.messages",
     "django.contrib.staticfiles",
     "rest_framework",
+    "rest_framework.authtoken",
+    "django_filters",
     "drf_spectacular",
+    "drf_spectacular_sidecar",
     "scheduling",
     "frontend",
 ]
 
 MIDDLEWARE = [
     "django.middleware.security.SecurityMiddleware",
+    "api.v1.errors.BodyLimit",
     "django.contrib.sessions.middleware.SessionMiddleware",
     "django.middleware.common.CommonMiddleware",
     "django.middleware.csrf.CsrfViewMiddleware",
@@ -105,12 +109,35 @@ USE_TZ = True
 STATIC_URL = "static/"
 STATIC_ROOT = VAR_DIR / "static"
 
+DATA_UPLOAD_MAX_MEMORY_SIZE = 20 * 2**20
+
 REST_FRAMEWORK = {
     "DEFAULT_SCHEMA_CLASS": "drf_spectacular.openapi.AutoSchema",
+    "DEFAULT_AUTHENTICATION_CLASSES": [
+        "rest_framework.authentication.TokenAuthentication",
+        "rest_framework.authentication.SessionAuthentication",
+    ],
+    "DEFAULT_PERMISSION_CLASSES": ["rest_framework.permissions.IsAuthenticated"],
+    "DEFAULT_RENDERER_CLASSES": ["rest_framework.renderers.JSONRenderer"],
+    "DEFAULT_PARSER_CLASSES": ["rest_framework.parsers.JSONParser"],
+    "EXCEPTION_HANDLER": "api.v1.errors.exception_handler",
+    "DEFAULT_THROTTLE_CLASSES": [
+        "rest_framework.throttling.AnonRateThrottle",
+        "rest_framework.throttling.UserRateThrottle",
+    ],
+    "DEFAULT_THROTTLE_RATES": {
+        "anon": os.environ.get("SITEPACE_THROTTLE_ANON", "60/minute"),
+        "user": os.environ.get("SITEPACE_THROTTLE_USER", "6000/minute"),
+    },
 }
 SPECTACULAR_SETTINGS = {
     "TITLE": "Sitepace API",
+    "DESCRIPTION": "Projects, their networks, and critical-path schedules.",
     "VERSION": "1",
+    "SWAGGER_UI_DIST": "SIDECAR",
+    "SWAGGER_UI_FAVICON_HREF": "SIDECAR",
+    "REDOC_DIST": "SIDECAR",
+    "COMPONENT_SPLIT_REQUEST": True,
 }
 
 # Celery: Redis in production; the embedded default uses kombu's file-system

@@ -1,6 +1,7 @@
 from django.contrib import admin
 from django.http import JsonResponse
-from django.urls import path
+from django.urls import include, path
+from drf_spectacular.views import SpectacularAPIView, SpectacularSwaggerView
 
 
 def healthz(request):
@@ -10,4 +11,10 @@ def healthz(request):
 urlpatterns = [
     path("healthz", healthz, name="healthz"),
     path("admin/", admin.site.urls),
+    path("api/v1/", include("api.v1.urls")),
+    path("api/schema/", SpectacularAPIView.as_view(), name="schema"),
+    path("api/docs/", SpectacularSwaggerView.as_view(url_name="schema"), name="docs"),
 ]
+
+handler404 = "api.v1.errors.not_found_json"
+handler500 = "api.v1.errors.server_error_json"

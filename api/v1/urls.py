@@ -1,0 +1,24 @@
+from django.urls import include, path
+from rest_framework.routers import DefaultRouter, SimpleRouter
+
+from . import views
+
+# Collections end with a slash; single resources such as .../network need
+# none. Both spellings are accepted, so no client meets a redirect.
+router = DefaultRouter()
+router.trailing_slash = "/?"
+router.register("projects", views.ProjectViewSet, basename="project")
+
+nested = SimpleRouter()
+nested.trailing_slash = "/?"
+nested.register("calendars", views.CalendarViewSet, basename="calendar")
+nested.register("crews", views.CrewViewSet, basename="crew")
+nested.register("activities", views.ActivityViewSet, basename="activity")
+nested.register("relations", views.RelationViewSet, basename="relation")
+nested.register("members", views.MemberViewSet, basename="member")
+
+urlpatterns = [
+    path("auth/token", views.TokenView.as_view(), name="token"),
+    path("projects/<int:project_pk>/", include(nested.urls)),
+    path("", include(router.urls)),
+]

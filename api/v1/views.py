@@ -1,0 +1,454 @@
+"""The REST layer: validate input, call one service or selector, serialise."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from django.contrib.auth import authenticate
+from django.db.models import QuerySet
+from drf_spectacular.utils import OpenApiParameter, OpenApiResponse, extend_schema
+from rest_framework import status, viewsets
+from rest_framework.authtoken.models import Token
+from rest_framework.decorators import action
+from rest_framework.pagination import PageNumberPagination
+from rest_framework.permissions import AllowAny, IsAuthenticated
+from rest_framework.response import Response
+from rest_framework.throttling import AnonRateThrottle
+from rest_framework.views import APIView
+
+from scheduling import services
+from scheduling.bridge import network_document
+from scheduling.errors import Invalid, NotFound
+from scheduling.models import Activity, Calendar, Crew, Membership, Project, Relation
+
+from . import serializers as s
+from .access import etag, if_match, project_for
+
+ORDERING = {
+    "activities": ("key", "name", "duration", "zone", "trade", "id"),
+    "calendars": ("key", "name", "id"),
+    "crews": ("key", "name", "capacity", "id"),
+    "relations": ("id", "type", "lag"),
+}
+
+
+class Pages(PageNumberPagination):
+    page_size = 100
+    page_size_query_param = "page_size"
+    max_page_size = 500
+
+
+def _ordered(request, qs: QuerySet, section: str) -> QuerySet:
+    """Whitelisted ordering, always ending with the id for a stable order."""
+    wanted = request.query_params.get("ordering", "")
+    fields = []
+    for name in filter(None, wanted.split(",")):
+        bare = name.lstrip("-")
+        if bare not in ORDERING[section]:
+            allowed = ", ".join(ORDERING[section])
+            raise Invalid(
+                f"cannot order by {bare!r}; use one of {allowed}",
+                [
+                    services.Problem(
+                        "/ordering", "bad_ordering", f"use one of {allowed}"
+                    )
+                ],
+            )
+        fields.append(name)
+    default = ["key"] if section != "relations" else []
+    return qs.order_by(*(fields or default), "id")
+
+
+class TokenView(APIView):
+    """Exchange a username and password for an API token."""
+
+    authentication_classes: list = []
+    permission_classes = [AllowAny]
+    throttle_classes = [AnonRateThrottle]
+
+    @extend_schema(request=s.TokenIn, responses={200: s.TokenOut})
+    def post(self, request):
+        data = s.TokenIn(data=request.data)
+        data.is_valid(raise_exception=True)
+        user = authenticate(request, **data.validated_data)
+        if user is None:
+            raise Invalid(
+                "wrong username or password",
+                [
+                    services.Problem(
+                        "/password", "bad_credentials", "wrong username or password"
+                    )
+                ],
+            )
+        token, _ = Token.objects.get_or_create(user=user)
+        return Response({"token": token.key})
+
+
+class ProjectViewSet(viewsets.ViewSet):
+    permission_classes = [IsAuthenticated]
+
+    def _roles(self, request) -> dict[int, str]:
+        return dict(
+            Membership.objects.filter(user=request.user).values_list(
+                "project_id", "role"
+            )
+        )
+
+    @extend_schema(responses=s.ProjectOut(many=True))
+    def list(self, request):
+        roles = self._roles(request)
+        qs = (
+            Project.objects.filter(pk__in=roles)
+            .select_related("calendar")
+            .order_by("id")
+        )
+        pages = Pages()
+        page = pages.paginate_queryset(qs, request, view=self)
+        out = s.ProjectOut(page, many=True, context={"roles": roles})
+        return pages.get_paginated_response(out.data)
+
+    @extend_schema(request=s.ProjectIn, responses={201: s.ProjectOut})
+    def create(self, request):
+        data = s.ProjectIn(data=request.data)
+        data.is_valid(raise_exception=True)
+        project = services.project_create(user=request.user, **data.validated_data)
+        return self._project_response(request, project, status.HTTP_201_CREATED)
+
+    @extend_schema(responses=s.ProjectOut)
+    def retrieve(self, request, pk=None):
+        project = project_for(request, pk, "project", write=False)
+        return self._project_response(request, project)
+
+    @extend_schema(request=s.ProjectIn(partial=True), responses=s.ProjectOut)
+    def partial_update(self, request, pk=None):
+        project = project_for(request, pk, "project", write=True)
+        data = s.ProjectIn(data=request.data, partial=True)
+        data.is_valid(raise_exception=True)
+        project = services.project_update(
+            project=project,
+            values=dict(data.validated_data),
+            expected_revision=if_match(request),
+        )
+        return self._project_response(request, project)
+
+    def _project_response(self, request, project, code=status.HTTP_200_OK):
+        project.refresh_from_db()
+        out = s.ProjectOut(project, context={"roles": self._roles(request)})
+        return Response(
+            out.data, status=code, headers={"ETag": etag(project.revision, "r")}
+        )
+
+    @extend_schema(
+        methods=["GET"],
+        responses={200: OpenApiResponse(description="the sitepace.network/1 document")},
+    )
+    @extend_schema(
+        methods=["PUT"],
+        request={"application/json": {"type": "object"}},
+        parameters=[
+            OpenApiParameter("If-Match", str, OpenApiParameter.HEADER, required=True)
+        ],
+        responses={200: OpenApiResponse(description="the stored network document")},
+    )
+    @action(detail=True, methods=["get", "put"])
+    def network(self, request, pk=None):
+        write = request.method == "PUT"
+        project = project_for(request, pk, "network", write=write)
+        if write:
+            project = services.network_replace(
+                project=project,
+                document=request.data,
+                expected_revision=if_match(request),
+            )
+        return Response(
+            network_document(project), headers={"ETag": etag(project.revision, "r")}
+        )
+
+    @extend_schema(
+        responses={200: OpenApiResponse(description="the sitepace.schedule/1 document")}
+    )
+    @action(detail=True, methods=["get"])
+    def schedule(self, request, pk=None):
+        project = project_for(request, pk, "schedule", write=False)
+        return Response(
+            services.schedule_get(project=project),
+            headers={"ETag": etag(project.revision, "r")},
+        )
+
+
+class NestedViewSet(viewsets.ViewSet):
+    permission_classes = [IsAuthenticated]
+    area = "network"
+
+    def project(self, write: bool) -> Project:
+        return project_for(self.request, self.kwargs["project_pk"], self.area, write)
+
+
+class KeyedViewSet(NestedViewSet):
+    """Calendars, crews and activities: entries named by a key in the network."""
+
+    section: str
+    model: Any
+    serializer_in: Any
+    serializer_out: Any
+
+    def _row(self, project: Project, pk: Any):
+        try:
+            return self.model.objects.get(project=project, pk=int(pk))
+        except (self.model.DoesNotExist, TypeError, ValueError):
+            raise NotFound(f"no such {self.section[:-1]} in this project") from None
+
+    def filtered(self, request, qs: QuerySet) -> QuerySet:
+        return qs
+
+    def list(self, request, project_pk=None):
+        project = self.project(write=False)
+        qs = self.filtered(request, self.model.objects.filter(project=project))
+        qs = _ordered(request, qs, self.section)
+        pages = Pages()
+        page = pages.paginate_queryset(qs, request, view=self)
+        return pages.get_paginated_response(self.serializer_out(page, many=True).data)
+
+    def retrieve(self, request, project_pk=None, pk=None):
+        row = self._row(self.project(write=False), pk)
+        return Response(
+            self.serializer_out(row).data, headers={"ETag": etag(row.version)}
+        )
+
+    def create(self, request, project_pk=None):
+        project = self.project(write=True)
+        data = self.serializer_in(data=request.data)
+        data.is_valid(raise_exception=True)
+        entry = s.as_entry(data.validated_data)
+        services.keyed_save(
+            project=project,
+            section=self.section,
+            key=None,
+            values=entry,
+            expected_version=None,
+            current_version=None,
+        )
+        row = self.model.objects.get(project=project, key=entry["key"])
+        return Response(
+            self.serializer_out(row).data,
+            status=status.HTTP_201_CREATED,
+            headers={"ETag": etag(row.version)},
+        )
+
+    def _change(self, request, pk, partial: bool):
+        project = self.project(write=True)
+        row = self._row(project, pk)
+        data = self.serializer_in(data=request.data, partial=partial)
+        data.is_valid(raise_exception=True)
+        entry = s.as_entry(data.validated_data)
+        services.keyed_save(
+            project=project,
+            section=self.section,
+            key=row.key,
+            values=entry,
+            expected_version=if_match(request),
+            current_version=row.version,
+        )
+        row = self.model.objects.get(project=project, key=entry.get("key", row.key))
+        return Response(
+            self.serializer_out(row).data, headers={"ETag": etag(row.version)}
+        )
+
+    def update(self, request, project_pk=None, pk=None):
+        return self._change(request, pk, partial=False)
+
+    def partial_update(self, request, project_pk=None, pk=None):
+        return self._change(request, pk, partial=True)
+
+    def destroy(self, request, project_pk=None, pk=None):
+        project = self.project(write=True)
+        row = self._row(project, pk)
+        services.keyed_delete(
+            project=project,
+            section=self.section,
+            key=row.key,
+            expected_version=if_match(request),
+            current_version=row.version,
+        )
+        return Response(status=status.HTTP_204_NO_CONTENT)
+
+
+@extend_schema(request=s.CalendarIn, responses=s.CalendarOut)
+class CalendarViewSet(KeyedViewSet):
+    section, model = "calendars", Calendar
+    serializer_in, serializer_out = s.CalendarIn, s.CalendarOut
+
+
+@extend_schema(request=s.CrewIn, responses=s.CrewOut)
+class CrewViewSet(KeyedViewSet):
+    section, model = "crews", Crew
+    serializer_in, serializer_out = s.CrewIn, s.CrewOut
+
+
+@extend_schema(
+    request=s.ActivityIn,
+    responses=s.ActivityOut,
+    parameters=[
+        OpenApiParameter("crew", str, description="only activities needing this crew"),
+        OpenApiParameter("zone", str),
+        OpenApiParameter("trade", str),
+        OpenApiParameter("critical", bool, description="only critical activities"),
+        OpenApiParameter("from", str, description="early dates overlap from this date"),
+        OpenApiParameter("to", str, description="early dates overlap up to this date"),
+        OpenApiParameter("ordering", str),
+    ],
+)
+class ActivityViewSet(KeyedViewSet):
+    section, model = "activities", Activity
+    serializer_in, serializer_out = s.ActivityIn, s.ActivityOut
+
+    def filtered(self, request, qs: QuerySet) -> QuerySet:
+        q = request.query_params
+        if q.get("crew"):
+            qs = qs.filter(demands__has_key=q["crew"])
+        for name in ("zone", "trade"):
+            if q.get(name):
+                qs = qs.filter(**{name: q[name]})
+        if q.get("critical") or q.get("from") or q.get("to"):
+            qs = qs.filter(key__in=self._by_schedule(request))
+        return qs
+
+    def _by_schedule(self, request) -> list[str]:
+        """Keys that pass the filters read from the critical path."""
+        import datetime as dt
+
+        q = request.query_params
+        window = {}
+        for name in ("from", "to"):
+            if q.get(name):
+                try:
+                    window[name] = dt.date.fromisoformat(q[name]).isoformat()
+                except ValueError:
+                    raise Invalid(
+                        f"{name} must be a date YYYY-MM-DD",
+                        [services.Problem(f"/{name}", "bad_date", "use YYYY-MM-DD")],
+                    ) from None
+        critical = q.get("critical", "").lower()
+        if critical and critical not in {"true", "false", "1", "0"}:
+            raise Invalid(
+                "critical must be true or false",
+                [services.Problem("/critical", "bad_flag", "use true or false")],
+            )
+        doc = services.schedule_get(project=self.project(write=False))
+        keys = []
+        for a in doc["activities"]:
+            if critical in {"true", "1"} and not a["critical"]:
+                continue
+            if critical in {"false", "0"} and a["critical"]:
+                continue
+            if "from" in window and a["early_finish"] < window["from"]:
+                continue
+            if "to" in window and a["early_start"] > window["to"]:
+                continue
+            keys.append(a["key"])
+        return keys
+
+
+@extend_schema(request=s.RelationIn, responses=s.RelationOut)
+class RelationViewSet(NestedViewSet):
+    def _row(self, project, pk):
+        try:
+            return Relation.objects.select_related("pred", "succ").get(
+                project=project, pk=int(pk)
+            )
+        except (Relation.DoesNotExist, TypeError, ValueError):
+            raise NotFound("no such relation in this project") from None
+
+    def list(self, request, project_pk=None):
+        project = self.project(write=False)
+        qs = Relation.objects.filter(project=project).select_related("pred", "succ")
+        if request.query_params.get("activity"):
+            key = request.query_params["activity"]
+            qs = qs.filter(pred__key=key) | qs.filter(succ__key=key)
+        qs = _ordered(request, qs, "relations")
+        pages = Pages()
+        page = pages.paginate_queryset(qs, request, view=self)
+        return pages.get_paginated_response(s.RelationOut(page, many=True).data)
+
+    def retrieve(self, request, project_pk=None, pk=None):
+        row = self._row(self.project(write=False), pk)
+        return Response(s.RelationOut(row).data, headers={"ETag": etag(row.version)})
+
+    def create(self, request, project_pk=None):
+        project = self.project(write=True)
+        data = s.RelationIn(data=request.data)
+        data.is_valid(raise_exception=True)
+        entry = s.as_entry(data.validated_data)
+        services.relation_save(
+            project=project,
+            pair=None,
+            values=entry,
+            expected_version=None,
+            current_version=None,
+        )
+        row = Relation.objects.select_related("pred", "succ").get(
+            project=project, pred__key=entry["pred"], succ__key=entry["succ"]
+        )
+        return Response(
+            s.RelationOut(row).data,
+            status=status.HTTP_201_CREATED,
+            headers={"ETag": etag(row.version)},
+        )
+
+    def partial_update(self, request, project_pk=None, pk=None):
+        project = self.project(write=True)
+        row = self._row(project, pk)
+        data = s.RelationIn(data=request.data, partial=True)
+        data.is_valid(raise_exception=True)
+        entry = s.as_entry(data.validated_data)
+        pair = (row.pred.key, row.succ.key)
+        services.relation_save(
+            project=project,
+            pair=pair,
+            values=entry,
+            expected_version=if_match(request),
+            current_version=row.version,
+        )
+        new_pair = (entry.get("pred", pair[0]), entry.get("succ", pair[1]))
+        row = Relation.objects.select_related("pred", "succ").get(
+            project=project, pred__key=new_pair[0], succ__key=new_pair[1]
+        )
+        return Response(s.RelationOut(row).data, headers={"ETag": etag(row.version)})
+
+    def destroy(self, request, project_pk=None, pk=None):
+        project = self.project(write=True)
+        row = self._row(project, pk)
+        services.relation_delete(
+            project=project,
+            pair=(row.pred.key, row.succ.key),
+            expected_version=if_match(request),
+            current_version=row.version,
+        )
+        return Response(status=status.HTTP_204_NO_CONTENT)
+
+
+@extend_schema(request=s.MemberIn, responses=s.MemberOut)
+class MemberViewSet(NestedViewSet):
+    area = "members"
+
+    def list(self, request, project_pk=None):
+        project = self.project(write=False)
+        qs = project.members.select_related("user").order_by("id")
+        pages = Pages()
+        page = pages.paginate_queryset(qs, request, view=self)
+        return pages.get_paginated_response(s.MemberOut(page, many=True).data)
+
+    def create(self, request, project_pk=None):
+        project = self.project(write=True)
+        data = s.MemberIn(data=request.data)
+        data.is_valid(raise_exception=True)
+        member = services.member_add(project=project, **data.validated_data)
+        return Response(s.MemberOut(member).data, status=status.HTTP_201_CREATED)
+
+    def destroy(self, request, project_pk=None, pk=None):
+        project = self.project(write=True)
+        member = project.members.filter(pk=pk).first() if str(pk).isdigit() else None
+        if member is None:
+            raise NotFound("no such member of this project")
+        services.member_remove(membership=member)
+        return Response(status=status.HTTP_204_NO_CONTENT)

@@ -1,0 +1,371 @@
+"""Services (writes) and selectors (reads) of stored projects.
+
+Every write checks the whole resulting network with the engine before any row
+changes, then writes inside one transaction and moves the project's network
+revision on. Views, tasks and commands call these functions and nothing lower.
+"""
+
+from __future__ import annotations
+
+import copy
+from collections.abc import Callable
+from typing import Any
+
+from django.contrib.auth import get_user_model
+from django.db import transaction
+
+from scheduling.engine import (
+    NetworkInvalid,
+    Problem,
+    critical_path,
+    parse_network,
+    schedule_document,
+)
+from scheduling.engine.network import Network
+
+from .bridge import network_document, network_rows_store
+from .errors import Invalid, NotFound, PreconditionFailed, PreconditionRequired
+from .models import ComputedSchedule, Membership, Project, Role
+
+WEEKDAYS = ["mon", "tue", "wed", "thu", "fri"]
+
+#: The sections of the network document that hold keyed entries.
+SECTIONS = ("calendars", "crews", "activities")
+
+
+def network_check(document: Any) -> Network:
+    """The engine's verdict on a whole document: a Network, or Invalid."""
+    try:
+        return parse_network(document)
+    except NetworkInvalid as exc:
+        raise Invalid(
+            f"the network has {len(exc.problems)} problem(s); nothing was stored",
+            exc.problems,
+        ) from None
+
+
+def _require_version(expected: int | None, current: int, what: str) -> None:
+    if expected is None:
+        raise PreconditionRequired(
+            f"send If-Match with the {what}'s current ETag to change it"
+        )
+    if expected != current:
+        raise PreconditionFailed(
+            f"the {what} changed since you read it (yours: {expected}, "
+            f"now: {current}); read it again and re-apply your change"
+        )
+
+
+def _locked(project: Project) -> Project:
+    return Project.objects.select_for_update().get(pk=project.pk)
+
+
+def project_create(*, user: Any, name: str, start: Any, **fields: Any) -> Project:
+    """A new project with a Monday-to-Friday calendar; its creator schedules it."""
+    document = {
+        "format": "sitepace.network/1",
+        "project": {
+            "name": name,
+            "start": start.isoformat() if hasattr(start, "isoformat") else start,
+            "calendar": "weekdays",
+            "data_date": fields.pop("data_date", None),
+            "deadline": fields.pop("deadline", None),
+        },
+        "calendars": [
+            {"key": "weekdays", "name": "Monday to Friday", "workdays": WEEKDAYS}
+        ],
+        "crews": [],
+        "activities": [],
+        "relations": [],
+    }
+    for k in ("data_date", "deadline"):
+        v = document["project"][k]
+        if v is not None and hasattr(v, "isoformat"):
+            document["project"][k] = v.isoformat()
+    _check_project_only(document)
+    with transaction.atomic():
+        project = Project.objects.create(name=name, start=start, **fields)
+        network_rows_store(project, document)
+        Membership.objects.create(user=user, project=project, role=Role.SCHEDULER)
+    return project
+
+
+def _check_project_only(document: dict[str, Any]) -> None:
+    """Check a document that may have no activity yet (a new project)."""
+    try:
+        parse_network(document)
+    except NetworkInvalid as exc:
+        real = [p for p in exc.problems if p.code != "no_activities"]
+        if real:
+            raise Invalid(
+                "the project is not valid; nothing was stored", real
+            ) from None
+
+
+def network_replace(
+    *, project: Project, document: Any, expected_revision: int | None
+) -> Project:
+    """Replace the whole network atomically, after checking all of it."""
+    _require_version(expected_revision, project.revision, "network")
+    if isinstance(document, dict) and not document.get("activities"):
+        _check_project_only(document)
+    else:
+        network_check(document)
+    with transaction.atomic():
+        locked = _locked(project)
+        _require_version(expected_revision, locked.revision, "network")
+        network_rows_store(locked, document)
+        locked.revision += 1
+        locked.save(update_fields=["revision", "updated_at"])
+    return locked
+
+
+Change = Callable[[dict[str, Any]], tuple[str, int] | None]
+
+
+def network_edit(*, project: Project, change: Change) -> Project:
+    """Apply ``change`` to the project's document, check it, store it.
+
+    ``change`` edits the document in place and returns the (section, index) of
+    the entry it is about, so that problems with that entry are reported
+    relative to it (``/duration`` rather than ``/activities/57/duration``).
+    """
+    with transaction.atomic():
+        locked = _locked(project)
+        document = network_document(locked)
+        before = copy.deepcopy(document)
+        entry = change(document)
+        if document == before:
+            return locked
+        try:
+            if document["activities"]:
+                parse_network(document)
+            else:
+                _check_project_only(document)
+        except NetworkInvalid as exc:
+            raise Invalid(
+                "the change would make the network invalid; nothing was stored",
+                _relative(exc.problems, document, entry),
+            ) from None
+        network_rows_store(locked, document)
+        locked.revision += 1
+        locked.save(update_fields=["revision", "updated_at"])
+    return locked
+
+
+def _relative(
+    problems: tuple[Problem, ...],
+    document: dict[str, Any],
+    entry: tuple[str, int] | None,
+) -> list[Problem]:
+    if entry is None:
+        return list(problems)
+    section, index = entry
+    prefix = f"/{section}/{index}"
+    out = []
+    for p in problems:
+        if p.pointer == prefix or p.pointer.startswith(prefix + "/"):
+            out.append(Problem(p.pointer[len(prefix) :] or "/", p.code, p.message))
+        else:
+            out.append(p)
+    return out
+
+
+def entry_index(document: dict[str, Any], section: str, key: str) -> int:
+    for i, e in enumerate(document[section]):
+        if e["key"] == key:
+            return i
+    raise NotFound(f"no {section[:-1]} {key!r} in this project")
+
+
+def keyed_save(
+    *,
+    project: Project,
+    section: str,
+    key: str | None,
+    values: dict[str, Any],
+    expected_version: int | None,
+    current_version: int | None,
+) -> Project:
+    """Create (``key`` None) or change one calendar, crew or activity.
+
+    A change of key carries over to every reference (relations, demands,
+    calendars in use).
+    """
+    if key is not None:
+        _require_version(expected_version, current_version or 0, section[:-1])
+
+    def change(doc: dict[str, Any]) -> tuple[str, int]:
+        entries = doc[section]
+        if key is None:
+            if any(e["key"] == values.get("key") for e in entries):
+                taken = f"key {values.get('key')!r} is taken"
+                raise Invalid(
+                    f"{section[:-1]} {values.get('key')!r} exists already",
+                    [Problem("/key", "duplicate_key", taken)],
+                )
+            entries.append(values)
+            return section, len(entries) - 1
+        i = entry_index(doc, section, key)
+        new_key = values.get("key", key)
+        entries[i] = {**entries[i], **values}
+        if new_key != key:
+            _rename(doc, section, key, new_key)
+        return section, i
+
+    return network_edit(project=project, change=change)
+
+
+def _rename(doc: dict[str, Any], section: str, old: str, new: str) -> None:
+    if section == "activities":
+        for r in doc["relations"]:
+            r["pred"] = new if r["pred"] == old else r["pred"]
+            r["succ"] = new if r["succ"] == old else r["succ"]
+    elif section == "crews":
+        for a in doc["activities"]:
+            if old in (a.get("demands") or {}):
+                a["demands"] = {
+                    new if k == old else k: v for k, v in a["demands"].items()
+                }
+    elif section == "calendars":
+        if doc["project"].get("calendar") == old:
+            doc["project"]["calendar"] = new
+        for e in doc["crews"] + doc["activities"]:
+            if e.get("calendar") == old:
+                e["calendar"] = new
+
+
+def keyed_delete(
+    *,
+    project: Project,
+    section: str,
+    key: str,
+    expected_version: int | None,
+    current_version: int,
+) -> Project:
+    """Delete one calendar, crew or activity (an activity takes its relations)."""
+    _require_version(expected_version, current_version, section[:-1])
+
+    def change(doc: dict[str, Any]) -> None:
+        del doc[section][entry_index(doc, section, key)]
+        if section == "activities":
+            doc["relations"] = [
+                r for r in doc["relations"] if key not in (r["pred"], r["succ"])
+            ]
+        return None
+
+    return network_edit(project=project, change=change)
+
+
+def relation_save(
+    *,
+    project: Project,
+    pair: tuple[str, str] | None,
+    values: dict[str, Any],
+    expected_version: int | None,
+    current_version: int | None,
+) -> Project:
+    """Create (``pair`` None) or change one relation, named by its pair of keys."""
+    if pair is not None:
+        _require_version(expected_version, current_version or 0, "relation")
+
+    def change(doc: dict[str, Any]) -> tuple[str, int]:
+        if pair is None:
+            doc["relations"].append(values)
+            return "relations", len(doc["relations"]) - 1
+        i = _relation_index(doc, pair)
+        doc["relations"][i] = {**doc["relations"][i], **values}
+        return "relations", i
+
+    return network_edit(project=project, change=change)
+
+
+def relation_delete(
+    *,
+    project: Project,
+    pair: tuple[str, str],
+    expected_version: int | None,
+    current_version: int,
+) -> Project:
+    _require_version(expected_version, current_version, "relation")
+
+    def change(doc: dict[str, Any]) -> None:
+        del doc["relations"][_relation_index(doc, pair)]
+        return None
+
+    return network_edit(project=project, change=change)
+
+
+def _relation_index(doc: dict[str, Any], pair: tuple[str, str]) -> int:
+    for i, r in enumerate(doc["relations"]):
+        if (r["pred"], r["succ"]) == pair:
+            return i
+    raise NotFound(f"no relation {pair[0]} → {pair[1]} in this project")
+
+
+def project_update(
+    *, project: Project, values: dict[str, Any], expected_revision: int | None
+) -> Project:
+    """Change the project's own fields; dates go through the network check."""
+    _require_version(expected_revision, project.revision, "project")
+    plain = {k: values.pop(k) for k in ("time_zone", "nightly_hour") if k in values}
+
+    def change(doc: dict[str, Any]) -> None:
+        for k, v in values.items():
+            doc["project"][k] = v.isoformat() if hasattr(v, "isoformat") else v
+        return None
+
+    project = network_edit(project=project, change=change)
+    if plain:
+        for k, v in plain.items():
+            setattr(project, k, v)
+        project.save(update_fields=[*plain, "updated_at"])
+    return project
+
+
+def member_add(*, project: Project, username: str, role: str) -> Membership:
+    user = get_user_model().objects.filter(username=username).first()
+    if user is None:
+        raise Invalid(
+            f"no user {username!r}",
+            [Problem("/username", "unknown_user", f"no user {username!r}")],
+        )
+    membership, _ = Membership.objects.update_or_create(
+        user=user, project=project, defaults={"role": role}
+    )
+    return membership
+
+
+def member_remove(*, membership: Membership) -> None:
+    project = membership.project
+    schedulers = project.members.filter(role=Role.SCHEDULER)
+    if membership.role == Role.SCHEDULER and schedulers.count() == 1:
+        raise Invalid(
+            "a project keeps at least one scheduler",
+            [Problem("/role", "last_scheduler", "the last scheduler cannot leave")],
+        )
+    membership.delete()
+
+
+def schedule_get(*, project: Project) -> dict[str, Any]:
+    """The critical-path schedule of the current revision, cached per revision."""
+    cached = ComputedSchedule.objects.filter(project=project).first()
+    if cached is not None and cached.revision == project.revision:
+        return cached.document
+    document = network_document(project)
+    if not document["activities"]:
+        raise Invalid(
+            "the project has no activities yet",
+            [Problem("/activities", "no_activities", "add activities first")],
+        )
+    net = network_check(document)
+    try:
+        result = critical_path(net)
+    except NetworkInvalid as exc:
+        raise Invalid("the network cannot be scheduled", exc.problems) from None
+    schedule = schedule_document(net, result)
+    schedule["revision"] = project.revision
+    ComputedSchedule.objects.update_or_create(
+        project=project, defaults={"revision": project.revision, "document": schedule}
+    )
+    return schedule
