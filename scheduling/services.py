@@ -369,3 +369,144 @@ def schedule_get(*, project: Project) -> dict[str, Any]:
         project=project, defaults={"revision": project.revision, "document": schedule}
     )
     return schedule
+
+
+def csv_import(
+    *, project: Project, section: str, text: str, expected_revision: int | None
+) -> tuple[Project, dict[str, int]]:
+    """Merge CSV rows into the network, all or nothing.
+
+    Activities are matched by key, relations by their pair of keys: a matching
+    entry is replaced, a new one added; nothing is deleted. Problems point at
+    the CSV line (``/rows/<line>/<column>``).
+    """
+    from .csvio import RowProblems, csv_rows
+
+    _require_version(expected_revision, project.revision, "network")
+    try:
+        rows, row_problems = csv_rows(text, section)
+    except RowProblems as exc:
+        raise Invalid(
+            f"{len(exc.problems)} problem(s) in the CSV; nothing was stored",
+            exc.problems,
+        ) from None
+    counts = {"added": 0, "changed": 0}
+    line_of: dict[int, int] = {}
+
+    def change(doc: dict[str, Any]) -> None:
+        entries = doc[section]
+        if section == "activities":
+            where = {e["key"]: i for i, e in enumerate(entries)}
+            ident = lambda e: e["key"]  # noqa: E731
+        else:
+            where = {(e["pred"], e["succ"]): i for i, e in enumerate(entries)}
+            ident = lambda e: (e["pred"], e["succ"])  # noqa: E731
+        for line, entry in rows:
+            i = where.get(ident(entry))
+            if i is None:
+                entries.append(entry)
+                i = where[ident(entry)] = len(entries) - 1
+                counts["added"] += 1
+            else:
+                entries[i] = {**entries[i], **entry}
+                counts["changed"] += 1
+            line_of[i] = line
+        if row_problems:
+            # Report the network's problems with the readable rows too, then
+            # refuse the whole file.
+            try:
+                parse_network(doc)
+                found: tuple[Problem, ...] = ()
+            except NetworkInvalid as exc:
+                found = exc.problems
+            every = [*row_problems, *_to_rows(found, section, line_of)]
+            raise Invalid(
+                f"{len(every)} problem(s) in the CSV; nothing was stored", every
+            )
+        return None
+
+    with transaction.atomic():
+        locked = _locked(project)
+        _require_version(expected_revision, locked.revision, "network")
+        try:
+            project = network_edit(project=locked, change=change)
+        except Invalid as exc:
+            if exc.problems and exc.problems[0].pointer.startswith("/rows"):
+                raise
+            raise Invalid(
+                exc.message, _to_rows(exc.problems, section, line_of)
+            ) from None
+    return project, counts
+
+
+def _to_rows(problems, section: str, line_of: dict[int, int]) -> list[Problem]:
+    """Point problems of imported entries at their CSV lines."""
+    out = []
+    for p in problems:
+        parts = p.pointer.split("/")
+        if len(parts) > 2 and parts[1] == section and parts[2].isdigit():
+            line = line_of.get(int(parts[2]))
+            if line is not None:
+                rest = "/".join(parts[3:])
+                pointer = f"/rows/{line}" + (f"/{rest}" if rest else "")
+                out.append(Problem(pointer, p.code, f"row {line}: {p.message}"))
+                continue
+        out.append(p)
+    return out
+
+
+def csv_export_section(*, project: Project, section: str) -> str:
+    from .csvio import csv_export
+
+    return csv_export(network_document(project), section)
+
+
+def crew_peaks_get(*, project: Project) -> list[Any]:
+    """Each crew's peak daily demand at early dates (engine ``crew_peaks``)."""
+    from scheduling.engine import crew_peaks
+
+    net = network_check(network_document(project))
+    return crew_peaks(net, critical_path(net))
+
+
+def demo_load(*, document: dict[str, Any], passwords: dict[str, str]) -> Project:
+    """Load the demo network as a project with one user per role.
+
+    ``passwords`` maps role → the password to set for that role's demo user
+    (``demo-scheduler``, ``demo-site-manager``, ``demo-owner``); an existing
+    demo project is brought up to date instead of duplicated.
+    """
+    users = {}
+    model = get_user_model()
+    for role in Role.values:
+        user, _ = model.objects.get_or_create(username=DEMO_USERS[role])
+        user.set_password(passwords[role])
+        user.save(update_fields=["password"])
+        users[role] = user
+    name = document["project"]["name"]
+    project = (
+        Project.objects.filter(
+            name=name,
+            members__user=users[Role.SCHEDULER],
+            members__role=Role.SCHEDULER,
+        )
+        .order_by("id")
+        .first()
+    )
+    if project is None:
+        project = project_create(
+            user=users[Role.SCHEDULER], name=name, start=document["project"]["start"]
+        )
+    project = network_replace(
+        project=project, document=document, expected_revision=project.revision
+    )
+    for role in (Role.SITE_MANAGER, Role.OWNER):
+        member_add(project=project, username=DEMO_USERS[role], role=role)
+    return project
+
+
+DEMO_USERS = {
+    Role.SCHEDULER: "demo-scheduler",
+    Role.SITE_MANAGER: "demo-site-manager",
+    Role.OWNER: "demo-owner",
+}

@@ -112,6 +112,7 @@ def test_missing_file_exits_2():
     assert "cannot read no/such/file.json" in out.stderr
 
 
+@pytest.mark.django_db
 def test_demo_check_prints_finish_path_crews_and_caution(capsys):
     call_command("demo", "--check")
     text = capsys.readouterr().out
@@ -120,4 +121,16 @@ def test_demo_check_prints_finish_path_crews_and_caution(capsys):
     assert "M-HANDOVER" in text
     assert "Crews at early dates" in text
     assert "competent person" in text
+    assert "demo-site-manager" in text
     assert text.rstrip().endswith("demo check: ok")
+
+
+@pytest.mark.django_db
+def test_demo_loads_once_and_its_users_can_sign_in(client):
+    from scheduling.models import Membership, Project
+
+    call_command("demo", "--check")
+    call_command("demo", "--check")
+    assert Project.objects.count() == 1
+    roles = sorted(Membership.objects.values_list("role", flat=True))
+    assert roles == ["owner", "scheduler", "site_manager"]

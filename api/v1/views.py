@@ -6,11 +6,15 @@ from typing import Any
 
 from django.contrib.auth import authenticate
 from django.db.models import QuerySet
+from django.http import HttpResponse
+from drf_spectacular.types import OpenApiTypes
 from drf_spectacular.utils import OpenApiParameter, OpenApiResponse, extend_schema
 from rest_framework import status, viewsets
 from rest_framework.authtoken.models import Token
 from rest_framework.decorators import action
+from rest_framework.exceptions import ParseError
 from rest_framework.pagination import PageNumberPagination
+from rest_framework.parsers import BaseParser
 from rest_framework.permissions import AllowAny, IsAuthenticated
 from rest_framework.response import Response
 from rest_framework.throttling import AnonRateThrottle
@@ -176,6 +180,64 @@ class ProjectViewSet(viewsets.ViewSet):
         )
 
 
+class CsvText(BaseParser):
+    """A CSV body, handed on as text."""
+
+    media_type = "text/csv"
+
+    def parse(self, stream, media_type=None, parser_context=None):
+        raw = stream.read()
+        try:
+            return raw.decode("utf-8-sig")
+        except UnicodeDecodeError:
+            raise ParseError("the CSV is not UTF-8 text") from None
+
+
+class CsvActions:
+    """``GET …/export`` gives CSV; ``POST …/import`` (text/csv) merges rows."""
+
+    csv_section: str
+
+    @extend_schema(responses={(200, "text/csv"): OpenApiTypes.STR})
+    @action(detail=False, methods=["get"], url_path="export")
+    def export(self, request, project_pk=None):
+        project = self.project(write=False)
+        text = services.csv_export_section(project=project, section=self.csv_section)
+        response = HttpResponse(text, content_type="text/csv; charset=utf-8")
+        name = f"project-{project.pk}-{self.csv_section}.csv"
+        response["Content-Disposition"] = f'attachment; filename="{name}"'
+        response["ETag"] = etag(project.revision, "r")
+        return response
+
+    @extend_schema(
+        request={"text/csv": OpenApiTypes.STR},
+        parameters=[
+            OpenApiParameter("If-Match", str, OpenApiParameter.HEADER, required=True)
+        ],
+        responses={
+            200: OpenApiResponse(description="counts of added and changed rows")
+        },
+    )
+    @action(detail=False, methods=["post"], url_path="import", parser_classes=[CsvText])
+    def import_csv(self, request, project_pk=None):
+        project = self.project(write=True)
+        if not isinstance(request.data, str):
+            raise Invalid(
+                "send the CSV as text/csv",
+                [services.Problem("/", "not_csv", "Content-Type must be text/csv")],
+            )
+        project, counts = services.csv_import(
+            project=project,
+            section=self.csv_section,
+            text=request.data,
+            expected_revision=if_match(request),
+        )
+        return Response(
+            {**counts, "revision": project.revision},
+            headers={"ETag": etag(project.revision, "r")},
+        )
+
+
 class NestedViewSet(viewsets.ViewSet):
     permission_classes = [IsAuthenticated]
     area = "network"
@@ -298,8 +360,9 @@ class CrewViewSet(KeyedViewSet):
         OpenApiParameter("ordering", str),
     ],
 )
-class ActivityViewSet(KeyedViewSet):
+class ActivityViewSet(CsvActions, KeyedViewSet):
     section, model = "activities", Activity
+    csv_section = "activities"
     serializer_in, serializer_out = s.ActivityIn, s.ActivityOut
 
     def filtered(self, request, qs: QuerySet) -> QuerySet:
@@ -350,7 +413,9 @@ class ActivityViewSet(KeyedViewSet):
 
 
 @extend_schema(request=s.RelationIn, responses=s.RelationOut)
-class RelationViewSet(NestedViewSet):
+class RelationViewSet(CsvActions, NestedViewSet):
+    csv_section = "relations"
+
     def _row(self, project, pk):
         try:
             return Relation.objects.select_related("pred", "succ").get(

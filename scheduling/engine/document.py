@@ -141,7 +141,7 @@ class _Reader:
                 self.problem(
                     ptr,
                     "not_integer",
-                    f"{what} must be a whole number{unit}, got {value!r}",
+                    f"{what} must be a whole number, got {value!r}",
                 )
                 return None
         if not low <= value <= high:
@@ -358,7 +358,7 @@ def parse_network(document: Any) -> Network:
             f"{label}: duration",
             0,
             10_000,
-            unit=" of working days",
+            unit=" working days",
         )
         acal = calendar_ref(
             entry.get("calendar"), ptr + "/calendar", label, project_cal
@@ -376,7 +376,7 @@ def parse_network(document: Any) -> Network:
                 f"{label}: remaining",
                 0,
                 10_000,
-                unit=" of working days",
+                unit=" working days",
             )
         if entry.get("percent_complete") is not None:
             r.integer(

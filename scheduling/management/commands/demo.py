@@ -1,27 +1,36 @@
-"""``manage.py demo [--check]``: the demo project's schedule, in plain words."""
+"""``manage.py demo [--check]``: load the demo project and show its schedule."""
 
 from __future__ import annotations
 
+import secrets
 import textwrap
 
 from django.conf import settings
+from django.core.management import call_command
 from django.core.management.base import BaseCommand, CommandError
+from django.db import connection
+from django.db.migrations.executor import MigrationExecutor
 
-from scheduling.engine import (
-    SITE_CAUTION,
-    NetworkInvalid,
-    crew_peaks,
-    critical_path,
-    parse_network,
-    schedule_document,
-)
+from scheduling import services
+from scheduling.engine import SITE_CAUTION
+from scheduling.errors import ServiceError
 from scheduling.files import DocumentUnreadable, document_read
+from scheduling.models import Role
 
 DEMO_FILE = "seed_data/demo_network.json"
 
 
+def _migrate_if_needed() -> None:
+    executor = MigrationExecutor(connection)
+    if executor.migration_plan(executor.loader.graph.leaf_nodes()):
+        call_command("migrate", verbosity=0, interactive=False)
+
+
 class Command(BaseCommand):
-    help = "Load the demo project and show its finish, critical path and crew peaks."
+    help = (
+        "Load the demo project into the database with a scheduler, a site manager "
+        "and an owner, and show its finish, driving path and crew peaks."
+    )
 
     def add_arguments(self, parser):
         parser.add_argument(
@@ -31,43 +40,50 @@ class Command(BaseCommand):
         )
 
     def handle(self, *args, check=False, **options):
-        path = settings.BASE_DIR / DEMO_FILE
         try:
-            document = document_read(str(path))
-            net = parse_network(document)
-            result = critical_path(net)
-        except (DocumentUnreadable, NetworkInvalid) as exc:
+            document = document_read(str(settings.BASE_DIR / DEMO_FILE))
+        except DocumentUnreadable as exc:
+            raise CommandError(f"the demo project cannot be read: {exc}") from None
+        _migrate_if_needed()
+        passwords = {role: secrets.token_urlsafe(9) for role in Role.values}
+        try:
+            project = services.demo_load(document=document, passwords=passwords)
+            schedule = services.schedule_get(project=project)
+            peaks = services.crew_peaks_get(project=project)
+        except ServiceError as exc:
+            problems = "\n".join(f"  {p}" for p in exc.problems)
             raise CommandError(
-                f"the demo project cannot be scheduled:\n{exc}"
-            ) from None
+                f"the demo project cannot be scheduled: {exc}\n{problems}"
+            )
         out = self.stdout
         for line in document.get("scenario", []):
             out.write(line)
         out.write("")
-        out.write(f"Project: {net.name}")
-        out.write(f"Start:   {net.start:%a %d %b %Y}")
+        summary = schedule["project"]
         out.write(
-            f"Finish:  {result.finish:%a %d %b %Y} "
-            f"({result.length} working days, critical path method)"
+            f"Project: {summary['name']} (id {project.pk}, revision {project.revision})"
         )
-        if net.deadline:
-            out.write(f"Deadline: {net.deadline:%a %d %b %Y}")
+        out.write(f"Start:   {summary['start']}")
+        out.write(
+            f"Finish:  {summary['finish']} ({summary['working_days']} working days, "
+            "critical path method)"
+        )
         out.write("")
+        path = schedule["critical_path"]
         out.write(
-            f"Driving path to the finish ({len(result.critical_path)} activities; "
-            "float in working days):"
+            f"Driving path to the finish ({len(path)} activities; float in working days):"
         )
-        floats = dict(zip(net.keys, result.total_float.tolist(), strict=True))
-        for n, step in enumerate(result.critical_path, 1):
+        floats = {a["key"]: a["total_float"] for a in schedule["activities"]}
+        for n, step in enumerate(path, 1):
             out.write(
-                f"  {n:>3}. {step.key:<16} {step.name[:40]:<40} "
-                f"{floats[step.key]:>3}  {step.driver.describe()}"
+                f"  {n:>3}. {step['key']:<16} {step['name'][:40]:<40} "
+                f"{floats[step['key']]:>3}  {_driver(step['driver'])}"
             )
         out.write("")
         out.write("Crews at early dates (before levelling):")
         out.write(f"  {'crew':<14} {'capacity':>8} {'peak':>5}  first peak day")
         over = 0
-        for peak in crew_peaks(net, result):
+        for peak in peaks:
             note = ""
             if peak.peak > peak.capacity:
                 over += 1
@@ -82,17 +98,29 @@ class Command(BaseCommand):
                 "spreads their work."
             )
         out.write("")
+        out.write("Demo users (passwords are new on every run):")
+        for role, username in services.DEMO_USERS.items():
+            out.write(f"  {Role(role).label:<13} {username:<18} {passwords[role]}")
+        out.write("")
         out.write(textwrap.fill("Caution: " + SITE_CAUTION, width=88))
+        out.write("")
         if check:
-            # The same result as the command line gives, as a whole document.
-            document = schedule_document(net, result)
-            if len(document["activities"]) != net.size or not document["critical_path"]:
-                raise CommandError("the demo schedule document is incomplete")
-            out.write("")
+            if len(schedule["activities"]) != len(document["activities"]) or not path:
+                raise CommandError("the demo schedule is incomplete")
             out.write("demo check: ok")
         else:
-            out.write("")
             out.write(
-                "Next: python manage.py schedule seed_data/demo_network.json "
-                "--output var/demo_schedule.json"
+                "API: POST /api/v1/auth/token with a demo user's name and password, "
+                f"then GET /api/v1/projects/{project.pk}/schedule."
             )
+
+
+def _driver(driver: dict) -> str:
+    if driver["kind"] == "relation":
+        lag = driver["lag"]
+        unit = driver["lag_unit"].replace("_", " ")
+        shown = f" {lag:+d} {unit}" if lag else ""
+        return f"{driver['type']}{shown} from {driver['pred']}"
+    if driver["kind"] == "not_before":
+        return f"not before {driver['date']}"
+    return driver["kind"].replace("_", " ")
