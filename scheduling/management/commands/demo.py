@@ -54,7 +54,7 @@ class Command(BaseCommand):
             problems = "\n".join(f"  {p}" for p in exc.problems)
             raise CommandError(
                 f"the demo project cannot be scheduled: {exc}\n{problems}"
-            )
+            ) from None
         out = self.stdout
         for line in document.get("scenario", []):
             out.write(line)
@@ -71,7 +71,8 @@ class Command(BaseCommand):
         out.write("")
         path = schedule["critical_path"]
         out.write(
-            f"Driving path to the finish ({len(path)} activities; float in working days):"
+            f"Driving path to the finish ({len(path)} activities; "
+            "float in working days):"
         )
         floats = {a["key"]: a["total_float"] for a in schedule["activities"]}
         for n, step in enumerate(path, 1):
