@@ -106,6 +106,9 @@ LANGUAGE_CODE = "en"
 TIME_ZONE = "UTC"
 USE_I18N = True
 USE_TZ = True
+LOGIN_URL = "/app/login"
+LOGIN_REDIRECT_URL = "/api/docs/"
+LOGOUT_REDIRECT_URL = "/app/login"
 STATIC_URL = "static/"
 STATIC_ROOT = VAR_DIR / "static"
 

@@ -1,7 +1,10 @@
 from django.contrib import admin
+from django.contrib.auth import views as auth_views
 from django.http import JsonResponse
 from django.urls import include, path
 from drf_spectacular.views import SpectacularAPIView, SpectacularSwaggerView
+
+from scheduling.engine import SITE_CAUTION
 
 
 def healthz(request):
@@ -11,6 +14,12 @@ def healthz(request):
 urlpatterns = [
     path("healthz", healthz, name="healthz"),
     path("admin/", admin.site.urls),
+    path(
+        "app/login",
+        auth_views.LoginView.as_view(extra_context={"caution": SITE_CAUTION}),
+        name="login",
+    ),
+    path("app/logout", auth_views.LogoutView.as_view(), name="logout"),
     path("api/v1/", include("api.v1.urls")),
     path("api/schema/", SpectacularAPIView.as_view(), name="schema"),
     path("api/docs/", SpectacularSwaggerView.as_view(url_name="schema"), name="docs"),

@@ -90,6 +90,7 @@ class TokenView(APIView):
 
 class ProjectViewSet(viewsets.ViewSet):
     permission_classes = [IsAuthenticated]
+    lookup_value_regex = r"\d+"
 
     def _roles(self, request) -> dict[int, str]:
         return dict(
@@ -240,6 +241,7 @@ class CsvActions:
 
 class NestedViewSet(viewsets.ViewSet):
     permission_classes = [IsAuthenticated]
+    lookup_value_regex = r"\d+"
     area = "network"
 
     def project(self, write: bool) -> Project:
