@@ -112,7 +112,9 @@ LOGOUT_REDIRECT_URL = "/app/login"
 STATIC_URL = "static/"
 STATIC_ROOT = VAR_DIR / "static"
 
-DATA_UPLOAD_MAX_MEMORY_SIZE = 20 * 2**20
+# A 2,000-activity network is about 1 MB; larger bodies are refused with 413.
+SITEPACE_MAX_BODY_BYTES = int(os.environ.get("SITEPACE_MAX_BODY_BYTES", 10 * 2**20))
+DATA_UPLOAD_MAX_MEMORY_SIZE = SITEPACE_MAX_BODY_BYTES
 
 REST_FRAMEWORK = {
     "DEFAULT_SCHEMA_CLASS": "drf_spectacular.openapi.AutoSchema",

@@ -9,8 +9,8 @@ import tempfile
 from pathlib import Path
 from typing import Any
 
-#: Larger documents are refused before parsing (the API uses the same bound).
-MAX_DOCUMENT_BYTES = 20 * 2**20
+#: Larger files are refused before parsing (the API has its own, lower bound).
+MAX_DOCUMENT_BYTES = 64 * 2**20
 
 
 class DocumentUnreadable(ValueError):

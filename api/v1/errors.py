@@ -103,10 +103,10 @@ class BodyLimit:
     """Refuse request bodies over the limit with 413, before anything reads them."""
 
     def __init__(self, get_response, limit: int | None = None):
-        from scheduling.files import MAX_DOCUMENT_BYTES
+        from django.conf import settings
 
         self.get_response = get_response
-        self.limit = limit or MAX_DOCUMENT_BYTES
+        self.limit = limit or settings.SITEPACE_MAX_BODY_BYTES
 
     def __call__(self, request):
         try:
