@@ -107,9 +107,14 @@ _ACT_FIELDS = (
 
 
 def _sync(model, existing: dict[str, Any], wanted: list[dict[str, Any]], fields, build):
-    """Create, update (bumping the version when anything changed) and delete."""
+    """Create, update (bumping the version when anything changed) and delete.
+
+    New rows go in with one bulk insert; changed rows are saved one by one
+    (an edit usually changes few).
+    """
     keep = set()
     rows = {}
+    fresh = []
     for entry in wanted:
         key = entry["key"]
         keep.add(key)
@@ -117,7 +122,7 @@ def _sync(model, existing: dict[str, Any], wanted: list[dict[str, Any]], fields,
         row = existing.get(key)
         if row is None:
             row = model(key=key, **values)
-            row.save()
+            fresh.append(row)
         else:
             changed = [f for f, v in values.items() if getattr(row, f) != v]
             if changed:
@@ -126,6 +131,7 @@ def _sync(model, existing: dict[str, Any], wanted: list[dict[str, Any]], fields,
                 row.version += 1
                 row.save(update_fields=[*changed, "version"])
         rows[key] = row
+    model.objects.bulk_create(fresh, batch_size=1000)
     gone = [row.pk for key, row in existing.items() if key not in keep]
     return rows, gone
 
@@ -202,6 +208,7 @@ def network_rows_store(project: Project, document: dict[str, Any]) -> None:
     )
     old_rels = {(r.pred_id, r.succ_id): r for r in project.relations.all()}
     keep = set()
+    fresh: list[Relation] = []
     for e in document.get("relations") or []:
         pair = (acts[e["pred"]].pk, acts[e["succ"]].pk)
         keep.add(pair)
@@ -212,8 +219,8 @@ def network_rows_store(project: Project, document: dict[str, Any]) -> None:
         }
         row = old_rels.get(pair)
         if row is None:
-            Relation.objects.create(
-                project=project, pred_id=pair[0], succ_id=pair[1], **values
+            fresh.append(
+                Relation(project=project, pred_id=pair[0], succ_id=pair[1], **values)
             )
         elif any(getattr(row, f) != v for f, v in values.items()):
             for f, v in values.items():
@@ -223,6 +230,7 @@ def network_rows_store(project: Project, document: dict[str, Any]) -> None:
     Relation.objects.filter(
         pk__in=[r.pk for pair, r in old_rels.items() if pair not in keep]
     ).delete()
+    Relation.objects.bulk_create(fresh, batch_size=1000)
     Activity.objects.filter(pk__in=gone_acts).delete()
     Crew.objects.filter(pk__in=gone_crews).delete()
 
