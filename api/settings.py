@@ -63,6 +63,7 @@ INSTALLED_APPS = [
 MIDDLEWARE = [
     "django.middleware.security.SecurityMiddleware",
     "api.v1.errors.BodyLimit",
+    "whitenoise.middleware.WhiteNoiseMiddleware",
     "django.contrib.sessions.middleware.SessionMiddleware",
     "django.middleware.common.CommonMiddleware",
     "django.middleware.csrf.CsrfViewMiddleware",
@@ -111,6 +112,10 @@ LOGIN_REDIRECT_URL = "/api/docs/"
 LOGOUT_REDIRECT_URL = "/app/login"
 STATIC_URL = "static/"
 STATIC_ROOT = VAR_DIR / "static"
+# Static files (the API reference page's scripts, later the pages) are served
+# by the app itself, from the installed packages, with no collect step needed.
+WHITENOISE_USE_FINDERS = True
+WHITENOISE_AUTOREFRESH = DEBUG
 
 # A 2,000-activity network is about 1 MB; larger bodies are refused with 413.
 SITEPACE_MAX_BODY_BYTES = int(os.environ.get("SITEPACE_MAX_BODY_BYTES", 10 * 2**20))
