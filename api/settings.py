@@ -112,6 +112,7 @@ LOGIN_REDIRECT_URL = "/api/docs/"
 LOGOUT_REDIRECT_URL = "/app/login"
 STATIC_URL = "static/"
 STATIC_ROOT = VAR_DIR / "static"
+STATIC_ROOT.mkdir(exist_ok=True)
 # Static files (the API reference page's scripts, later the pages) are served
 # by the app itself, from the installed packages, with no collect step needed.
 WHITENOISE_USE_FINDERS = True

@@ -13,6 +13,7 @@ from typing import Any
 
 from django.contrib.auth import get_user_model
 from django.db import transaction
+from django.db.models import F
 
 from scheduling.engine import (
     NetworkInvalid,
@@ -25,7 +26,19 @@ from scheduling.engine.network import Network
 
 from .bridge import network_document, network_rows_store
 from .errors import Invalid, NotFound, PreconditionFailed, PreconditionRequired
-from .models import ComputedSchedule, Membership, Project, Role
+from .models import (
+    Activity,
+    Calendar,
+    ComputedSchedule,
+    Crew,
+    Membership,
+    Project,
+    Relation,
+    Role,
+)
+
+MODELS = {"calendars": Calendar, "crews": Crew, "activities": Activity}
+SINGULAR = {"calendars": "calendar", "crews": "crew", "activities": "activity"}
 
 WEEKDAYS = ["mon", "tue", "wed", "thu", "fri"]
 
@@ -54,6 +67,23 @@ def _require_version(expected: int | None, current: int, what: str) -> None:
             f"the {what} changed since you read it (yours: {expected}, "
             f"now: {current}); read it again and re-apply your change"
         )
+
+
+def _claim(queryset: Any, field: str, expected: int | None, what: str) -> None:
+    """Check the version inside the transaction, holding the row for the write.
+
+    A no-op conditional UPDATE takes the row lock (PostgreSQL) or the write
+    lock (SQLite) and tells whether the version still matches, so of two
+    writers that read the same version exactly one gets through.
+    """
+    if expected is None:
+        _require_version(expected, 0, what)
+    held = queryset.filter(**{field: expected}).update(**{field: F(field)})
+    if held != 1:
+        current = queryset.values_list(field, flat=True).first()
+        if current is None:
+            raise NotFound(f"the {what} no longer exists")
+        _require_version(expected, current, what)
 
 
 def _locked(project: Project) -> Project:
@@ -112,8 +142,13 @@ def network_replace(
     else:
         network_check(document)
     with transaction.atomic():
+        _claim(
+            Project.objects.filter(pk=project.pk),
+            "revision",
+            expected_revision,
+            "network",
+        )
         locked = _locked(project)
-        _require_version(expected_revision, locked.revision, "network")
         network_rows_store(locked, document)
         locked.revision += 1
         locked.save(update_fields=["revision", "updated_at"])
@@ -123,14 +158,19 @@ def network_replace(
 Change = Callable[[dict[str, Any]], tuple[str, int] | None]
 
 
-def network_edit(*, project: Project, change: Change) -> Project:
+def network_edit(
+    *, project: Project, change: Change, claim: Callable[[], None] | None = None
+) -> Project:
     """Apply ``change`` to the project's document, check it, store it.
 
     ``change`` edits the document in place and returns the (section, index) of
     the entry it is about, so that problems with that entry are reported
     relative to it (``/duration`` rather than ``/activities/57/duration``).
+    ``claim`` checks the client's version inside the transaction.
     """
     with transaction.atomic():
+        if claim is not None:
+            claim()
         locked = _locked(project)
         document = network_document(locked)
         before = copy.deepcopy(document)
@@ -175,7 +215,7 @@ def entry_index(document: dict[str, Any], section: str, key: str) -> int:
     for i, e in enumerate(document[section]):
         if e["key"] == key:
             return i
-    raise NotFound(f"no {section[:-1]} {key!r} in this project")
+    raise NotFound(f"no {SINGULAR[section]} {key!r} in this project")
 
 
 def keyed_save(
@@ -193,7 +233,7 @@ def keyed_save(
     calendars in use).
     """
     if key is not None:
-        _require_version(expected_version, current_version or 0, section[:-1])
+        _require_version(expected_version, current_version or 0, SINGULAR[section])
 
     def change(doc: dict[str, Any]) -> tuple[str, int]:
         entries = doc[section]
@@ -201,7 +241,7 @@ def keyed_save(
             if any(e["key"] == values.get("key") for e in entries):
                 taken = f"key {values.get('key')!r} is taken"
                 raise Invalid(
-                    f"{section[:-1]} {values.get('key')!r} exists already",
+                    f"{SINGULAR[section]} {values.get('key')!r} exists already",
                     [Problem("/key", "duplicate_key", taken)],
                 )
             entries.append(values)
@@ -213,7 +253,11 @@ def keyed_save(
             _rename(doc, section, key, new_key)
         return section, i
 
-    return network_edit(project=project, change=change)
+    claim = None
+    if key is not None:
+        rows = MODELS[section].objects.filter(project=project, key=key)
+        claim = lambda: _claim(rows, "version", expected_version, SINGULAR[section])  # noqa: E731
+    return network_edit(project=project, change=change, claim=claim)
 
 
 def _rename(doc: dict[str, Any], section: str, old: str, new: str) -> None:
@@ -244,7 +288,7 @@ def keyed_delete(
     current_version: int,
 ) -> Project:
     """Delete one calendar, crew or activity (an activity takes its relations)."""
-    _require_version(expected_version, current_version, section[:-1])
+    _require_version(expected_version, current_version, SINGULAR[section])
 
     def change(doc: dict[str, Any]) -> None:
         del doc[section][entry_index(doc, section, key)]
@@ -254,7 +298,12 @@ def keyed_delete(
             ]
         return None
 
-    return network_edit(project=project, change=change)
+    rows = MODELS[section].objects.filter(project=project, key=key)
+    return network_edit(
+        project=project,
+        change=change,
+        claim=lambda: _claim(rows, "version", expected_version, SINGULAR[section]),
+    )
 
 
 def relation_save(
@@ -277,7 +326,11 @@ def relation_save(
         doc["relations"][i] = {**doc["relations"][i], **values}
         return "relations", i
 
-    return network_edit(project=project, change=change)
+    claim = None
+    if pair is not None:
+        rows = _relation_rows(project, pair)
+        claim = lambda: _claim(rows, "version", expected_version, "relation")  # noqa: E731
+    return network_edit(project=project, change=change, claim=claim)
 
 
 def relation_delete(
@@ -293,7 +346,18 @@ def relation_delete(
         del doc["relations"][_relation_index(doc, pair)]
         return None
 
-    return network_edit(project=project, change=change)
+    rows = _relation_rows(project, pair)
+    return network_edit(
+        project=project,
+        change=change,
+        claim=lambda: _claim(rows, "version", expected_version, "relation"),
+    )
+
+
+def _relation_rows(project: Project, pair: tuple[str, str]) -> Any:
+    return Relation.objects.filter(
+        project=project, pred__key=pair[0], succ__key=pair[1]
+    )
 
 
 def _relation_index(doc: dict[str, Any], pair: tuple[str, str]) -> int:
@@ -315,7 +379,16 @@ def project_update(
             doc["project"][k] = v.isoformat() if hasattr(v, "isoformat") else v
         return None
 
-    project = network_edit(project=project, change=change)
+    project = network_edit(
+        project=project,
+        change=change,
+        claim=lambda: _claim(
+            Project.objects.filter(pk=project.pk),
+            "revision",
+            expected_revision,
+            "project",
+        ),
+    )
     if plain:
         for k, v in plain.items():
             setattr(project, k, v)
@@ -426,10 +499,14 @@ def csv_import(
         return None
 
     with transaction.atomic():
-        locked = _locked(project)
-        _require_version(expected_revision, locked.revision, "network")
+        _claim(
+            Project.objects.filter(pk=project.pk),
+            "revision",
+            expected_revision,
+            "network",
+        )
         try:
-            project = network_edit(project=locked, change=change)
+            project = network_edit(project=project, change=change)
         except Invalid as exc:
             if exc.problems and exc.problems[0].pointer.startswith("/rows"):
                 raise

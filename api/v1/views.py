@@ -260,7 +260,9 @@ class KeyedViewSet(NestedViewSet):
         try:
             return self.model.objects.get(project=project, pk=int(pk))
         except (self.model.DoesNotExist, TypeError, ValueError):
-            raise NotFound(f"no such {self.section[:-1]} in this project") from None
+            raise NotFound(
+                f"no such {services.SINGULAR[self.section]} in this project"
+            ) from None
 
     def filtered(self, request, qs: QuerySet) -> QuerySet:
         return qs
