@@ -3,7 +3,8 @@
 The embedded default needs nothing set: SQLite under ``var/`` and a Celery
 broker on the local file system. Production sets ``SECRET_KEY``,
 ``ALLOWED_HOSTS``, ``DATABASE_URL`` (PostgreSQL) and ``CELERY_BROKER_URL``
-(Redis).
+(Redis); with ``DATABASE_URL`` set and neither ``SECRET_KEY`` nor ``DEBUG``,
+the settings refuse to load.
 """
 
 import os
@@ -35,7 +36,18 @@ def _local_secret_key() -> str:
 
 
 DEBUG = _flag("DEBUG")
-SECRET_KEY = os.environ.get("SECRET_KEY") or _local_secret_key()
+# A key on this machine's disk is only right where the database is on this
+# machine's disk too, or for a DEBUG run: a deployment with a shared database
+# needs one key on every machine, so it must set SECRET_KEY or refuse to start.
+_EMBEDDED_DATABASE = "DATABASE_URL" not in os.environ
+SECRET_KEY = os.environ.get("SECRET_KEY", "")
+if not SECRET_KEY:
+    if not (DEBUG or _EMBEDDED_DATABASE):
+        raise ImproperlyConfigured(
+            "SECRET_KEY is not set; set it in the environment (only DEBUG=1 or "
+            "the embedded SQLite default fall back to var/secret_key)"
+        )
+    SECRET_KEY = _local_secret_key()
 ALLOWED_HOSTS = [
     h.strip()
     for h in os.environ.get("ALLOWED_HOSTS", "localhost,127.0.0.1").split(",")

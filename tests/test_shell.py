@@ -1,6 +1,7 @@
 """The Django shell around the engine: health, settings, the command line."""
 
 import json
+import os
 import subprocess
 import sys
 from pathlib import Path
@@ -53,6 +54,35 @@ def test_healthz_answers_ok(client):
 
 def test_allowed_hosts_are_named_not_wildcard():
     assert "*" not in settings.ALLOWED_HOSTS
+
+
+def _settings_load(tmp_path, **env):
+    clean = {k: v for k, v in os.environ.items() if k not in {"SECRET_KEY", "DEBUG"}}
+    clean.update(env, SITEPACE_VAR_DIR=str(tmp_path / "var"))
+    return subprocess.run(
+        [sys.executable, "-c", "from django.conf import settings; settings.SECRET_KEY"],
+        cwd=ROOT,
+        env={**clean, "DJANGO_SETTINGS_MODULE": "api.settings"},
+        capture_output=True,
+        text=True,
+        timeout=60,
+    )
+
+
+def test_settings_refuse_a_shared_database_without_secret_key(tmp_path):
+    out = _settings_load(tmp_path, DATABASE_URL=f"sqlite:///{tmp_path / 'db'}")
+    assert out.returncode != 0
+    assert "SECRET_KEY is not set" in out.stderr
+    assert not (tmp_path / "var" / "secret_key").exists()
+
+
+def test_debug_run_keeps_one_generated_key_per_machine(tmp_path):
+    env = {"DATABASE_URL": f"sqlite:///{tmp_path / 'db'}", "DEBUG": "1"}
+    assert _settings_load(tmp_path, **env).returncode == 0
+    key = (tmp_path / "var" / "secret_key").read_text()
+    assert len(key) >= 50
+    assert _settings_load(tmp_path, **env).returncode == 0
+    assert (tmp_path / "var" / "secret_key").read_text() == key
 
 
 def test_schedule_command_writes_the_schedule_document(tmp_path):
