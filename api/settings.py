@@ -135,7 +135,7 @@ SITEPACE_MAX_BODY_BYTES = int(os.environ.get("SITEPACE_MAX_BODY_BYTES", 10 * 2**
 DATA_UPLOAD_MAX_MEMORY_SIZE = SITEPACE_MAX_BODY_BYTES
 
 REST_FRAMEWORK = {
-    "DEFAULT_SCHEMA_CLASS": "drf_spectacular.openapi.AutoSchema",
+    "DEFAULT_SCHEMA_CLASS": "api.v1.schema.PagedSchema",
     "DEFAULT_AUTHENTICATION_CLASSES": [
         "rest_framework.authentication.TokenAuthentication",
         "rest_framework.authentication.SessionAuthentication",
@@ -161,6 +161,10 @@ SPECTACULAR_SETTINGS = {
     "SWAGGER_UI_FAVICON_HREF": "SIDECAR",
     "REDOC_DIST": "SIDECAR",
     "COMPONENT_SPLIT_REQUEST": True,
+    "POSTPROCESSING_HOOKS": [
+        "drf_spectacular.hooks.postprocess_schema_enums",
+        "api.v1.schema.add_error_envelope",
+    ],
 }
 
 # Celery: Redis in production; the embedded default uses kombu's file-system

@@ -64,7 +64,9 @@ class ProjectIn(serializers.Serializer):
 
 
 class ProjectOut(serializers.ModelSerializer):
-    calendar = serializers.SlugRelatedField(slug_field="key", read_only=True)
+    calendar = serializers.SlugRelatedField(
+        slug_field="key", read_only=True, allow_null=True
+    )
     role = serializers.SerializerMethodField()
 
     class Meta:
@@ -129,7 +131,9 @@ class CrewIn(serializers.Serializer):
 
 
 class CrewOut(serializers.ModelSerializer):
-    calendar = serializers.SlugRelatedField(slug_field="key", read_only=True)
+    calendar = serializers.SlugRelatedField(
+        slug_field="key", read_only=True, allow_null=True
+    )
 
     class Meta:
         model = Crew
@@ -158,7 +162,9 @@ class ActivityIn(serializers.Serializer):
 
 
 class ActivityOut(serializers.ModelSerializer):
-    calendar = serializers.SlugRelatedField(slug_field="key", read_only=True)
+    calendar = serializers.SlugRelatedField(
+        slug_field="key", read_only=True, allow_null=True
+    )
 
     class Meta:
         model = Activity
@@ -219,3 +225,17 @@ class TokenIn(serializers.Serializer):
 
 class TokenOut(serializers.Serializer):
     token = serializers.CharField()
+
+
+def page_of(item: type[serializers.Serializer]) -> type[serializers.Serializer]:
+    """The schema of one page of ``item``s (what the list endpoints answer)."""
+    return type(
+        f"{item.__name__.removesuffix('Out')}Page",
+        (serializers.Serializer,),
+        {
+            "count": serializers.IntegerField(),
+            "next": serializers.URLField(allow_null=True),
+            "previous": serializers.URLField(allow_null=True),
+            "results": item(many=True),
+        },
+    )

@@ -8,7 +8,12 @@ from django.contrib.auth import authenticate
 from django.db.models import QuerySet
 from django.http import HttpResponse
 from drf_spectacular.types import OpenApiTypes
-from drf_spectacular.utils import OpenApiParameter, OpenApiResponse, extend_schema
+from drf_spectacular.utils import (
+    OpenApiParameter,
+    OpenApiResponse,
+    extend_schema,
+    extend_schema_view,
+)
 from rest_framework import status, viewsets
 from rest_framework.authtoken.models import Token
 from rest_framework.decorators import action
@@ -99,7 +104,7 @@ class ProjectViewSet(viewsets.ViewSet):
             )
         )
 
-    @extend_schema(responses=s.ProjectOut(many=True))
+    @extend_schema(responses=s.page_of(s.ProjectOut))
     def list(self, request):
         roles = self._roles(request)
         qs = (
@@ -340,12 +345,14 @@ class KeyedViewSet(NestedViewSet):
 
 
 @extend_schema(request=s.CalendarIn, responses=s.CalendarOut)
+@extend_schema_view(list=extend_schema(responses=s.page_of(s.CalendarOut)))
 class CalendarViewSet(KeyedViewSet):
     section, model = "calendars", Calendar
     serializer_in, serializer_out = s.CalendarIn, s.CalendarOut
 
 
 @extend_schema(request=s.CrewIn, responses=s.CrewOut)
+@extend_schema_view(list=extend_schema(responses=s.page_of(s.CrewOut)))
 class CrewViewSet(KeyedViewSet):
     section, model = "crews", Crew
     serializer_in, serializer_out = s.CrewIn, s.CrewOut
@@ -364,6 +371,7 @@ class CrewViewSet(KeyedViewSet):
         OpenApiParameter("ordering", str),
     ],
 )
+@extend_schema_view(list=extend_schema(responses=s.page_of(s.ActivityOut)))
 class ActivityViewSet(CsvActions, KeyedViewSet):
     section, model = "activities", Activity
     csv_section = "activities"
@@ -417,6 +425,7 @@ class ActivityViewSet(CsvActions, KeyedViewSet):
 
 
 @extend_schema(request=s.RelationIn, responses=s.RelationOut)
+@extend_schema_view(list=extend_schema(responses=s.page_of(s.RelationOut)))
 class RelationViewSet(CsvActions, NestedViewSet):
     csv_section = "relations"
 
@@ -497,6 +506,7 @@ class RelationViewSet(CsvActions, NestedViewSet):
 
 
 @extend_schema(request=s.MemberIn, responses=s.MemberOut)
+@extend_schema_view(list=extend_schema(responses=s.page_of(s.MemberOut)))
 class MemberViewSet(NestedViewSet):
     area = "members"
 

@@ -57,7 +57,8 @@ _ACTIVITY = {
     "unit",
 }
 _PROGRESS = ("actual_start", "actual_finish", "remaining", "percent_complete")
-_EXTRAS = ("zone", "trade", "planned_value", "quantity", "unit")
+#: Longest key of a calendar, crew or activity (the stored rows hold 64).
+MAX_KEY = 64
 _RELATION = {"pred", "succ", "type", "lag", "lag_unit"}
 
 
@@ -93,15 +94,40 @@ class _Reader:
         return value
 
     def text(
-        self, value: Any, ptr: str, what: str, *, required: bool = True
+        self,
+        value: Any,
+        ptr: str,
+        what: str,
+        *,
+        required: bool = True,
+        longest: int = 200,
     ) -> str | None:
-        if value is None and not required:
+        # An optional text left empty (as spreadsheets and forms leave it) is
+        # the same as no text.
+        if not required and (value is None or value == ""):
             return None
         if not isinstance(value, str) or not value.strip():
             self.problem(ptr, "wrong_type", f"{what} must be a non-empty text")
             return None
-        if len(value) > 200:
-            self.problem(ptr, "too_long", f"{what} is longer than 200 characters")
+        if len(value) > longest:
+            self.problem(ptr, "too_long", f"{what} is longer than {longest} characters")
+            return None
+        return value
+
+    def key(self, value: Any, ptr: str, what: str) -> str | None:
+        return self.text(value, ptr, what, longest=MAX_KEY)
+
+    def amount(self, value: Any, ptr: str, what: str) -> float | None:
+        """An optional number ≥ 0 (money or quantity), at most 10^12."""
+        if value is None:
+            return None
+        if isinstance(value, bool) or not isinstance(value, int | float):
+            self.problem(ptr, "not_number", f"{what} must be a number, got {value!r}")
+            return None
+        if not 0 <= value <= 1e12:
+            self.problem(
+                ptr, "out_of_range", f"{what} must be 0 to 10^12, got {value!r}"
+            )
             return None
         return value
 
@@ -205,7 +231,7 @@ def parse_network(document: Any) -> Network:
         entry = r.obj(raw, ptr, f"calendar #{i}")
         if entry is None:
             continue
-        key = r.text(entry.get("key"), ptr + "/key", f"calendar #{i} key")
+        key = r.key(entry.get("key"), ptr + "/key", f"calendar #{i} key")
         label = f"calendar {key or '#' + str(i)}"
         r.unknown_fields(entry, _CALENDAR, ptr, label)
         days = r.array(entry.get("workdays"), ptr + "/workdays", f"{label}: workdays")
@@ -261,7 +287,7 @@ def parse_network(document: Any) -> Network:
         entry = r.obj(raw, ptr, f"crew #{i}")
         if entry is None:
             continue
-        key = r.text(entry.get("key"), ptr + "/key", f"crew #{i} key")
+        key = r.key(entry.get("key"), ptr + "/key", f"crew #{i} key")
         label = f"crew {key or '#' + str(i)}"
         r.unknown_fields(entry, _CREW, ptr, label)
         cname = r.text(
@@ -333,7 +359,7 @@ def parse_network(document: Any) -> Network:
         ptr = pointer("activities", i)
         entry = r.obj(raw, ptr, f"activity #{i}")
         key = (
-            r.text(entry.get("key"), ptr + "/key", f"activity #{i} key")
+            r.key(entry.get("key"), ptr + "/key", f"activity #{i} key")
             if entry is not None
             else None
         )
@@ -439,7 +465,22 @@ def parse_network(document: Any) -> Network:
         act_cals.append(acal if acal is not None else 0)
         not_before.append(day_offset(nb))
         act_deadline.append(day_offset(dl))
-        extras.append({k: entry[k] for k in _EXTRAS if entry.get(k) is not None})
+        grouping: dict[str, object] = {}
+        for name_, longest in (("zone", 100), ("trade", 100), ("unit", 32)):
+            word = r.text(
+                entry.get(name_),
+                f"{ptr}/{name_}",
+                f"{label}: {name_}",
+                required=False,
+                longest=longest,
+            )
+            if word is not None:
+                grouping[name_] = word
+        for name_ in ("planned_value", "quantity"):
+            amount = r.amount(entry.get(name_), f"{ptr}/{name_}", f"{label}: {name_}")
+            if amount is not None:
+                grouping[name_] = amount
+        extras.append(grouping)
 
     preds: list[int] = []
     succs: list[int] = []
