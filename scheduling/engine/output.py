@@ -118,3 +118,59 @@ def crew_peaks(network: Network, result: CpmResult) -> list[CrewPeak]:
         when = result.tables.date_of(int(row.argmax())) if peak else None
         out.append(CrewPeak(crew.key, crew.name, crew.capacity, peak, when))
     return out
+
+
+def levelled_document(
+    network: Network, result: CpmResult, levelled: Any
+) -> dict[str, Any]:
+    """The schedule document with the levelled dates and the run's figures.
+
+    Each activity gains ``start``/``finish`` (levelled, inclusive finish) and
+    the crew-aware ``level_total_float``/``level_free_float``/``level_critical``
+    (working days of its calendar); ``levelling`` holds the status, goal,
+    finish, the solver's bound and gap, what moved and the levelled driving
+    path, each step driven by a relation or a crew.
+    """
+    doc = schedule_document(network, result)
+    by_key = {a.key: a for a in levelled.activities}
+    for entry in doc["activities"]:
+        got = by_key[entry["key"]]
+        entry.update(
+            start=got.start.isoformat(),
+            finish=got.finish.isoformat(),
+            level_late_start=got.late_start.isoformat(),
+            level_late_finish=got.late_finish.isoformat(),
+            level_total_float=got.total_float,
+            level_free_float=got.free_float,
+            level_critical=got.critical,
+            lateness=got.lateness,
+        )
+    doc["kind"] = "levelled"
+    doc["levelling"] = {
+        "status": levelled.status,
+        "goal": levelled.goal,
+        "finish": levelled.finish.isoformat(),
+        "bound": levelled.bound.isoformat() if levelled.bound else None,
+        "gap_percent": round(levelled.gap_percent, 2),
+        "objective": levelled.objective,
+        "objective_bound": levelled.objective_bound,
+        "heuristic_finish": (
+            levelled.heuristic_finish.isoformat() if levelled.heuristic_finish else None
+        ),
+        "over_capacity": dict(levelled.over_capacity),
+        "moved": [
+            {
+                "key": mv.key,
+                "previous": mv.previous.isoformat(),
+                "start": mv.start.isoformat(),
+                "days": mv.days,
+                "reason": mv.reason,
+            }
+            for mv in levelled.moved
+        ],
+        "critical_path": [
+            {"key": s.key, "name": s.name, "driver": s.driver.as_dict()}
+            for s in levelled.critical_path
+        ],
+    }
+    return doc
