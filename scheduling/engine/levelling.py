@@ -1,0 +1,1773 @@
+"""Crew levelling with constraint programming (OR-Tools CP-SAT).
+
+:func:`level` schedules a network so that no crew is asked for more than it
+has, with one of two goals:
+
+* ``"shortest"`` — the earliest finish that respects every crew's capacity
+  (the resource-constrained project scheduling problem), with a proven lower
+  bound on that finish;
+* ``"smooth"`` — keep a given finish (by default the critical-path finish) and
+  spread each crew's daily demand as evenly as possible: capacity becomes
+  soft, the peak over capacity is minimised first, then, with that peak held,
+  the day-to-day changes of demand.
+
+Given the previous plan, a further solve keeps as many activities as it can
+where they were (the goal's result held), then moves the rest as little as it
+can, and says why each moved.
+
+Time and relations follow the critical path exactly (see :mod:`.heuristic`
+and :mod:`.cpm`): the solver's time axis is calendar days from the project
+start; an activity's start is a working day of its calendar, its end comes
+through the calendar's tables, so a span may cross weekends and holidays
+without being split. A crew is held over the whole span of an activity: exact
+when the crew's activities share a calendar (nothing of theirs can start on
+the days off inside a span), cautious otherwise. A crew's days off are not
+taken from its capacity — a span across a weekend would become impossible —
+while an unavailable period is a fixed block that uses up the whole capacity.
+
+The steps are the CP-SAT order: data (:func:`_prepare`), model
+(:func:`build_model`), solve (:func:`solve`), read out (:func:`read_out`).
+Every schedule returned has passed :func:`~.checker.check_schedule`.
+
+Float after levelling follows Kim & de la Garza, "Phantom float" (J. Constr.
+Eng. Manage. 129(5), 2003): crew links — which activity hands crew units on to
+which — are added to the logic, and the backward pass on both gives float that
+respects the crews and a driving path that is continuous, each step driven by
+a relation or a crew.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import heapq
+import time
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, field
+
+import numpy as np
+from ortools.sat.python import cp_model as cp
+
+from .checker import check_schedule
+from .cpm import CpmResult, critical_path
+from .heuristic import (
+    Relation,
+    Schedule,
+    Stuck,
+    Timeline,
+    best_heuristic,
+    build_timeline,
+)
+from .network import NO_DATE, RELATION_TYPES, Network
+from .problems import NetworkInvalid, Problem, pointer
+
+GOALS = ("shortest", "smooth")
+#: A hard upper limit on the horizon the heuristic may search, in days (about
+#: 40 years): beyond it a crew is taken to have no availability at all.
+MAX_HORIZON_DAYS = 14_610
+
+ProgressFn = Callable[[dt.date, "dt.date | None", float], None]
+
+
+class LevellingInfeasible(NetworkInvalid):
+    """No schedule meets the crews and the limits; the problems say why."""
+
+
+class ScheduleRejected(RuntimeError):
+    """The independent checker refused a schedule: a bug in the levelling."""
+
+
+# ---------------------------------------------------------------------------
+# Results
+
+
+@dataclass(frozen=True, slots=True)
+class LevelDriver:
+    """What holds an activity's levelled start where it is.
+
+    ``kind``: ``"relation"`` (a logic relation from ``pred``), ``"crew"``
+    (``pred`` hands units of ``crew`` on), ``"project_start"``, ``"data_date"``,
+    ``"not_before"``, ``"crew_unavailable"`` (``crew`` is back on ``date``) or
+    ``"levelling"`` (nothing forces the date: the goal or the stability solve
+    chose it, e.g. to smooth a crew's demand or keep the previous plan).
+    """
+
+    kind: str
+    pred: str | None = None
+    type: str | None = None
+    lag: int = 0
+    lag_unit: str = "workdays"
+    crew: str | None = None
+    date: dt.date | None = None
+
+    def describe(self) -> str:
+        if self.kind == "relation":
+            lag = (
+                f" {self.lag:+d} {self.lag_unit.replace('_', ' ')}" if self.lag else ""
+            )
+            return f"{self.type}{lag} from {self.pred}"
+        if self.kind == "crew":
+            return f"crew {self.crew} from {self.pred}"
+        if self.kind == "crew_unavailable":
+            return f"crew {self.crew} back on {self.date}"
+        if self.kind == "not_before":
+            return f"not before {self.date}"
+        if self.kind == "levelling":
+            return f"held to {self.date} by the levelling"
+        return self.kind.replace("_", " ")
+
+    def as_dict(self) -> dict[str, object]:
+        out: dict[str, object] = {"kind": self.kind}
+        if self.kind == "relation":
+            out.update(
+                pred=self.pred, type=self.type, lag=self.lag, lag_unit=self.lag_unit
+            )
+        if self.kind == "crew":
+            out.update(pred=self.pred, crew=self.crew)
+        if self.kind == "crew_unavailable":
+            out["crew"] = self.crew
+        if self.date is not None and self.kind not in ("relation", "crew"):
+            out["date"] = self.date.isoformat()
+        return out
+
+
+@dataclass(frozen=True, slots=True)
+class LevelStep:
+    key: str
+    name: str
+    driver: LevelDriver
+
+
+@dataclass(frozen=True, slots=True)
+class LevelledActivity:
+    """One activity after levelling.
+
+    ``finish`` is inclusive (the last working day; a milestone's finish is its
+    start). ``total_float``/``free_float`` are the crew-aware floats in working
+    days of the activity's calendar: how far it can slip with the logic *and*
+    the crew hand-overs kept (total: without moving the project finish or a
+    deadline; free: without moving anything else). ``late_start``/
+    ``late_finish`` are the matching latest dates. ``lateness`` is the calendar
+    days past the activity's deadline (0 when on time), ``None`` without one.
+    """
+
+    key: str
+    start: dt.date
+    finish: dt.date
+    late_start: dt.date
+    late_finish: dt.date
+    total_float: int
+    free_float: int
+    critical: bool
+    lateness: int | None
+
+
+@dataclass(frozen=True, slots=True)
+class Move:
+    """An activity that starts on another date than in the previous plan.
+
+    ``days`` is signed, in working days of the activity's calendar (positive:
+    later). ``reason``: ``"network change"`` (the previous date breaks the
+    network now — its logic, durations, dates or calendars — or a move forced
+    by such a move), ``"crew change"`` (the previous plan overloads a crew the
+    activity uses — capacity, unavailable periods or demands changed — or a
+    move forced by such a move), ``"goal"`` (the previous date would still be
+    feasible: the goal moved it).
+    """
+
+    key: str
+    previous: dt.date
+    start: dt.date
+    days: int
+    reason: str
+
+
+@dataclass(frozen=True, slots=True)
+class CrewLink:
+    """``pred`` hands ``units`` of ``crew`` on to ``succ`` (``pred`` ends first).
+
+    ``pred`` or ``succ`` is ``None`` for a crew's unavailable period (its
+    dates are ``block``).
+    """
+
+    crew: str
+    pred: str | None
+    succ: str | None
+    units: int
+    block: tuple[dt.date, dt.date] | None = None
+
+
+@dataclass(frozen=True, slots=True)
+class SolveStats:
+    """One CP-SAT solve. ``objective``/``bound`` are in the solve's own units."""
+
+    phase: str
+    status: str
+    wall_time: float
+    branches: int
+    conflicts: int
+    objective: int | None
+    bound: int | None
+
+
+@dataclass(frozen=True)
+class LevelResult:
+    """A levelled schedule.
+
+    ``status``: ``"optimal"`` (the goal is proven best), ``"feasible"`` (a
+    schedule, not proven best), ``"no_solution_in_time"`` (the solver found
+    nothing: this is the heuristic's schedule) — an infeasible problem raises
+    :class:`LevellingInfeasible` instead.
+
+    ``finish`` is the project finish (latest finish date). ``bound`` is a date:
+    for ``"shortest"`` no crew-feasible schedule finishes before it (equal to
+    ``finish`` when optimal); for ``"smooth"`` it is ``None``. ``objective`` and
+    ``objective_bound`` are the goal solve's figures: the finish in calendar
+    days from the project start (``"shortest"``), or the crew units over
+    capacity, summed over crews (``"smooth"``); activity lateness, when there
+    are deadlines, is a lower-order term folded into neither (see
+    ``lateness``). ``gap_percent`` = 100 · (objective − bound) / objective.
+
+    ``over_capacity`` lists, per crew, how many units over its capacity the
+    schedule asks on its worst day (always zero for ``"shortest"``).
+    """
+
+    status: str
+    goal: str
+    finish: dt.date
+    bound: dt.date | None
+    gap_percent: float
+    objective: int
+    objective_bound: int
+    activities: tuple[LevelledActivity, ...]
+    moved: tuple[Move, ...]
+    crew_links: tuple[CrewLink, ...]
+    critical_path: tuple[LevelStep, ...]
+    over_capacity: tuple[tuple[str, int], ...]
+    heuristic_finish: dt.date | None
+    stats: tuple[SolveStats, ...]
+    wall_time: float
+    message: str = ""
+    _index: dict[str, int] = field(default_factory=dict, repr=False, compare=False)
+
+    def __post_init__(self) -> None:
+        self._index.update({a.key: i for i, a in enumerate(self.activities)})
+
+    @property
+    def starts(self) -> dict[str, dt.date]:
+        return {a.key: a.start for a in self.activities}
+
+    @property
+    def finishes(self) -> dict[str, dt.date]:
+        return {a.key: a.finish for a in self.activities}
+
+    @property
+    def lateness(self) -> dict[str, int]:
+        """Calendar days late, per activity that has a deadline."""
+        return {a.key: a.lateness for a in self.activities if a.lateness is not None}
+
+    @property
+    def branches(self) -> int:
+        return sum(s.branches for s in self.stats)
+
+    def activity(self, key: str) -> LevelledActivity:
+        return self.activities[self._index[key]]
+
+
+# ---------------------------------------------------------------------------
+# Data
+
+
+@dataclass
+class _Plan:
+    """Everything the model needs, in integers (days from the project start)."""
+
+    network: Network
+    cpm: CpmResult
+    tl: Timeline
+    goal: str
+    limit: int | None  # latest finish day allowed, or None
+    es: list[int]  # earliest start positions (critical path)
+    ls: list[int]  # latest start positions for the model's horizon
+    finish_max: int  # latest finish day the model may use
+    logic_finish: int  # critical-path finish day (latest early finish)
+    heuristic: Schedule | None
+    heuristic_rule: str
+    previous: dict[int, int]  # activity → previous start day
+    deadline: dict[int, int]  # activity → deadline day
+
+
+def _days(cpm: CpmResult, days: np.ndarray) -> list[int]:
+    """Table days of a critical-path result as days from the project start."""
+    off = (cpm.network.start - cpm.tables.origin).days
+    return [int(x) - off for x in days]
+
+
+def _prepare(
+    network: Network,
+    goal: str,
+    finish: dt.date | None,
+    previous: Mapping[str, dt.date] | None,
+) -> _Plan:
+    """Check what can be checked before a solve and lay out the integer data.
+
+    Raises :class:`LevellingInfeasible` for an activity that needs more of a
+    crew than it has, a ``not_before`` past the finish limit, logic that cannot
+    meet the limit, or a crew with no room for an activity before the horizon.
+    """
+    net = network
+    cpm = critical_path(net)
+    problems: list[Problem] = []
+    for a, k, u in zip(
+        net.dem_activity.tolist(),
+        net.dem_crew.tolist(),
+        net.dem_units.tolist(),
+        strict=True,
+    ):
+        crew = net.crews[k]
+        if u > crew.capacity and net.duration[a] > 0:
+            problems.append(
+                Problem(
+                    pointer("activities", a, "demands", crew.key),
+                    "demand_over_capacity",
+                    f"activity {net.keys[a]} needs {u} of crew {crew.key}, which "
+                    f"has {crew.capacity} on every day; no date can fit it",
+                )
+            )
+    early_finish = _days(cpm, cpm.early_finish_day)
+    logic_finish = max(early_finish)
+    limit = None
+    if finish is not None:
+        limit = (finish - net.start).days
+    elif goal == "smooth":
+        limit = logic_finish
+    if limit is not None:
+        for i in range(net.size):
+            nb = int(net.not_before[i])
+            if nb != NO_DATE and nb > limit:
+                problems.append(
+                    Problem(
+                        pointer("activities", i, "not_before"),
+                        "not_before_after_horizon",
+                        f"activity {net.keys[i]}: not before "
+                        f"{net.start + dt.timedelta(days=nb)} is after the finish "
+                        f"limit {net.start + dt.timedelta(days=limit)}",
+                    )
+                )
+        if logic_finish > limit and not problems:
+            last = cpm.critical_path[-1].key if cpm.critical_path else net.keys[0]
+            problems.append(
+                Problem(
+                    "/project",
+                    "logic_after_horizon",
+                    "the logic alone finishes "
+                    f"{net.start + dt.timedelta(days=logic_finish)} "
+                    f"(activity {last}), after the finish limit "
+                    f"{net.start + dt.timedelta(days=limit)}",
+                )
+            )
+    if problems:
+        raise LevellingInfeasible(problems)
+
+    prev_day: dict[int, int] = {}
+    index = {k: i for i, k in enumerate(net.keys)}
+    for key, day in (previous or {}).items():
+        if key in index:
+            prev_day[index[key]] = (day - net.start).days
+    deadline = {
+        i: int(d) for i, d in enumerate(net.act_deadline.tolist()) if d != NO_DATE
+    }
+
+    es_day = _days(cpm, cpm.early_start_day)
+    ls_day = _days(cpm, cpm.late_start_day)
+    heuristic: Schedule | None = None
+    rule = ""
+    if limit is not None:
+        tl = build_timeline(net, limit + 1)
+        es = [tl.pos(tl.cal[i], es_day[i]) for i in range(net.size)]
+        late = [tl.pos(tl.cal[i], ls_day[i]) for i in range(net.size)]
+        first = _previous_priority(tl, prev_day, es) if prev_day else None
+        heuristic, stuck, rule = best_heuristic(
+            tl, es, late, limit=limit + 1, first=first
+        )
+        if heuristic is None and goal == "shortest" and stuck is not None:
+            _explain_no_room(net, tl, stuck, problems, limit)
+        # The shortest finish is no later than a schedule already in hand.
+        finish_max = limit
+        if heuristic is not None and goal == "shortest":
+            finish_max = min(limit, heuristic.finish)
+    else:
+        # A first search limit: the logic's finish plus every crew-holding
+        # span one after another (a week spare each); doubled while the
+        # heuristic finds no room, up to MAX_HORIZON_DAYS.
+        held = set(net.dem_activity.tolist())
+        span = sum(early_finish[i] - es_day[i] + 8 for i in held if net.duration[i] > 0)
+        cap = logic_finish + 1 + span
+        while True:
+            tl = build_timeline(net, cap)
+            es = [tl.pos(tl.cal[i], es_day[i]) for i in range(net.size)]
+            late = [tl.pos(tl.cal[i], ls_day[i]) for i in range(net.size)]
+            first = _previous_priority(tl, prev_day, es) if prev_day else None
+            heuristic, stuck, rule = best_heuristic(
+                tl, es, late, limit=cap, first=first
+            )
+            if heuristic is not None:
+                break
+            if cap >= MAX_HORIZON_DAYS + logic_finish:
+                assert stuck is not None
+                _explain_no_room(net, tl, stuck, problems, None)
+                raise LevellingInfeasible(
+                    [
+                        Problem(
+                            pointer("activities", stuck.activity),
+                            "no_room_before_horizon",
+                            f"activity {net.keys[stuck.activity]} finds no room "
+                            f"before the horizon {tl.date(cap - 1)}",
+                        )
+                    ]
+                )
+            cap = min(cap * 2, MAX_HORIZON_DAYS + logic_finish)
+        finish_max = heuristic.finish
+        # Tables just past the heuristic's finish: the model needs no more.
+        tl = build_timeline(net, finish_max + 1)
+        es = [tl.pos(tl.cal[i], es_day[i]) for i in range(net.size)]
+    if problems:
+        raise LevellingInfeasible(problems)
+    ls = late_positions(tl, finish_max, [], deadlines=False)
+    return _Plan(
+        network=net,
+        cpm=cpm,
+        tl=tl,
+        goal=goal,
+        limit=limit,
+        es=es,
+        ls=ls,
+        finish_max=finish_max,
+        logic_finish=logic_finish,
+        heuristic=heuristic,
+        heuristic_rule=rule,
+        previous=prev_day,
+        deadline=deadline,
+    )
+
+
+def _previous_priority(
+    tl: Timeline, prev_day: dict[int, int], es: list[int]
+) -> list[float]:
+    """Serial-scheme priorities that replay the previous plan: earlier first."""
+    return [float(prev_day.get(i, tl.day(tl.cal[i], es[i]))) for i in range(tl.size)]
+
+
+def _explain_no_room(
+    net: Network,
+    tl: Timeline,
+    stuck: Stuck,
+    problems: list[Problem],
+    limit: int | None,
+) -> None:
+    """Turn the heuristic's dead end into a problem naming activity and crew."""
+    key = net.keys[stuck.activity]
+    when = net.start + dt.timedelta(days=stuck.limit - 1)
+    if stuck.crew is None:
+        return
+    crew = net.crews[stuck.crew]
+    if limit is None or not _has_room_before(tl, stuck.crew, stuck.limit):
+        problems.append(
+            Problem(
+                pointer("crews", stuck.crew, "unavailable"),
+                "crew_unavailable",
+                f"crew {crew.key} has no room for activity {key} "
+                f"({tl.dur[stuck.activity]} working days) before the horizon "
+                f"{when}: its unavailable periods leave no long enough gap",
+            )
+        )
+    if problems:
+        raise LevellingInfeasible(problems)
+
+
+def _has_room_before(tl: Timeline, k: int, limit: int) -> bool:
+    free = 0
+    last = 0
+    for a, b in tl.blocks[k]:
+        free += max(0, min(a, limit) - last)
+        last = max(last, b)
+    free += max(0, limit - last)
+    return free > 0
+
+
+# ---------------------------------------------------------------------------
+# Model
+
+
+@dataclass
+class _Model:
+    """The CP-SAT model and the variables the later steps read or hint.
+
+    ``pos[i]`` is activity ``i``'s start position (working days of its
+    calendar). Day variables are made only where something needs a day:
+    ``start``/``end`` (start day, end instant) for spans of crews whose
+    activities mix calendars, ``finish`` for the project finish and
+    deadlines, ``rel_w`` for relations read through a table.
+    """
+
+    model: cp.CpModel
+    plan: _Plan
+    pos: list[cp.IntVar]
+    makespan: cp.IntVar
+    start: dict[int, cp.IntVar] = field(default_factory=dict)
+    end: dict[int, cp.IntVar] = field(default_factory=dict)
+    finish: dict[int, cp.IntVar] = field(default_factory=dict)
+    finish_pos: dict[int, cp.IntVar] = field(default_factory=dict)
+    span: dict[int, cp.IntVar] = field(default_factory=dict)
+    rel_w: list[tuple[Relation, cp.IntVar]] = field(default_factory=list)
+    late: dict[int, cp.IntVar] = field(default_factory=dict)
+    over: dict[int, cp.IntVar] = field(default_factory=dict)
+    goal_objective: cp.LinearExprT = 0
+    goal_weight: int = 1
+    intervals: dict[tuple[int, int | None], cp.IntervalVar] = field(
+        default_factory=dict
+    )
+    tv: list[tuple[cp.IntVar, list[tuple[int, cp.IntVar]], int]] = field(
+        default_factory=list
+    )
+    starts_at: dict[tuple[int, int], cp.IntVar] = field(default_factory=dict)
+    moved: dict[int, tuple[cp.IntVar | None, cp.IntVar, int]] = field(
+        default_factory=dict
+    )
+
+    # Expressions of a position through the calendar tables. An element
+    # constraint reads a slice of the shared table over the activity's window.
+
+    def _table(self, i: int, values: list[int], name: str) -> cp.IntVar:
+        lo = self.plan.es[i]
+        var = self.model.new_int_var_from_domain(
+            cp.Domain.from_values(sorted(set(values))), f"{name}_{i}"
+        )
+        self.model.add_element(self.pos[i] - lo, values, var)
+        return var
+
+    def _window(self, i: int) -> range:
+        return range(self.plan.es[i], self.plan.ls[i] + 1)
+
+    def start_day(self, i: int) -> cp.LinearExprT:
+        """The start day (days from the project start)."""
+        tl = self.plan.tl
+        c = tl.cal[i]
+        if tl.identity[c]:
+            return self.pos[i] - tl.pad
+        if i not in self.start:
+            self.start[i] = self._table(
+                i, [tl.day(c, q) for q in self._window(i)], "start"
+            )
+        return self.start[i]
+
+    def end_instant(self, i: int) -> cp.LinearExprT:
+        """The end instant (the day after the finish; a milestone's start)."""
+        tl = self.plan.tl
+        if tl.dur[i] == 0:
+            return self.start_day(i)
+        if tl.identity[tl.cal[i]]:
+            return self.pos[i] - tl.pad + tl.dur[i]
+        if i not in self.end:
+            self.end[i] = self._table(i, [tl.end(i, q) for q in self._window(i)], "end")
+        return self.end[i]
+
+    def finish_day(self, i: int) -> cp.LinearExprT:
+        """The finish day (inclusive; a milestone's day)."""
+        tl = self.plan.tl
+        if tl.identity[tl.cal[i]]:
+            return self.pos[i] - tl.pad + max(tl.dur[i] - 1, 0)
+        if i not in self.finish:
+            self.finish[i] = self._table(
+                i, [tl.finish_day(i, q) for q in self._window(i)], "finish"
+            )
+        return self.finish[i]
+
+    def interval(self, i: int, k: int) -> cp.IntervalVar:
+        """Activity ``i`` on crew ``k``'s axis (positions or days)."""
+        tl = self.plan.tl
+        axis = tl.axis[k]
+        key = (i, axis if axis is None else tl.cal[i])
+        if key in self.intervals:
+            return self.intervals[key]
+        model = self.model
+        if axis is not None or tl.identity[tl.cal[i]]:
+            # Positions on the shared calendar: working days, fixed length.
+            start = self.pos[i] if axis is not None else self.start_day(i)
+            iv = model.new_fixed_size_interval_var(start, tl.dur[i], f"span_{i}")
+        else:
+            lengths = [tl.end(i, q) - tl.day(tl.cal[i], q) for q in self._window(i)]
+            size = model.new_int_var(min(lengths), max(lengths), f"span_days_{i}")
+            self.span[i] = size
+            iv = model.new_interval_var(
+                self.start_day(i), size, self.end_instant(i), f"span_{i}"
+            )
+        self.intervals[key] = iv
+        return iv
+
+
+def build_model(plan: _Plan) -> _Model:
+    """Variables and constraints of the levelling, and the goal's objective.
+
+    Each start is a position between its critical-path early start and its
+    latest start for the horizon; every position is a working day of the
+    activity's calendar, so starts fall on working days by construction, and
+    days come through the calendar's tables (element constraints on slices
+    of the shared tables) only where something needs them. Relations are
+    linear on positions when both ends share a calendar and the lag is in
+    working days (or both calendars work every day); the others read the
+    successor's table through one element each. A crew's cumulative counts
+    positions when all its activities share a calendar, days over whole spans
+    otherwise.
+    """
+    tl, net = plan.tl, plan.network
+    n = tl.size
+    model = cp.CpModel()
+    pos = []
+    for i in range(n):
+        if plan.ls[i] < plan.es[i]:
+            raise AssertionError(f"empty window for {net.keys[i]}")
+        pos.append(model.new_int_var(plan.es[i], plan.ls[i], f"pos_{i}"))
+    m = _Model(
+        model=model,
+        plan=plan,
+        pos=pos,
+        makespan=model.new_int_var(plan.logic_finish, plan.finish_max, "finish"),
+    )
+
+    for r in tl.relations:
+        _add_relation(m, plan, r)
+
+    # The finish: only activities that can end last bound it. One with an FS
+    # successor (no lead) never does, nor one that cannot pass the logic's
+    # finish, which bounds the finish from below anyway. On a calendar that
+    # does not work every day, "finishes by day M" reads as "ends by position
+    # W[M + 1]": one table look-up of M per calendar, shared by all.
+    for i in range(n):
+        if any(rr.type == 0 and rr.wl >= 0 and rr.cl >= 0 for rr in tl.succs[i]):
+            continue
+        if tl.finish_day(i, plan.ls[i]) <= plan.logic_finish:
+            continue
+        c = tl.cal[i]
+        if tl.identity[c]:
+            model.add(m.makespan >= m.finish_day(i))
+            continue
+        if c not in m.finish_pos:
+            days = range(plan.logic_finish, plan.finish_max + 1)
+            table = [tl.Wl[c][t + 1 + tl.pad] for t in days]
+            v = model.new_int_var(min(table), max(table), f"finish_on_{c}")
+            model.add_element(m.makespan - plan.logic_finish, table, v)
+            m.finish_pos[c] = v
+        model.add(m.pos[i] + max(tl.dur[i], 1) <= m.finish_pos[c])
+
+    # Crews: a cumulative each, with unavailable periods as fixed blocks.
+    for k, crew in enumerate(net.crews):
+        tasks = [
+            (m.interval(i, k), u)
+            for i in range(n)
+            if tl.dur[i]
+            for kk, u in tl.demands[i]
+            if kk == k
+        ]
+        if not tasks:
+            continue
+        total = sum(u for _, u in tasks)
+        limit = tl.axis_limit(k, plan.finish_max + 1)
+        blocks = [
+            (
+                model.new_fixed_size_interval_var(a, b - a, f"away_{k}_{a}"),
+                crew.capacity,
+            )
+            for a, b in tl.axis_blocks[k]
+            if a < limit
+        ]
+        if plan.goal == "smooth":
+            # Up to every demand at once, even during an unavailable period.
+            over = model.new_int_var(0, total, f"over_{k}")
+            m.over[k] = over
+            capacity: cp.LinearExprT = crew.capacity + over
+        else:
+            if total <= crew.capacity and not blocks:
+                continue  # never binding
+            capacity = crew.capacity
+        items = tasks + blocks
+        model.add_cumulative([x for x, _ in items], [u for _, u in items], capacity)
+    if plan.goal == "shortest" and CLIQUES:
+        _add_cliques(m, plan)
+
+    # Deadlines are soft: days late cost less than any change of the goal.
+    max_late = 0
+    for i, dl in plan.deadline.items():
+        worst = max(tl.finish_day(i, plan.ls[i]) - dl, 0)
+        v = model.new_int_var(0, worst, f"late_{i}")
+        model.add(v >= m.finish_day(i) - dl)
+        m.late[i] = v
+        max_late += worst
+    weight = max_late + 1
+    main: cp.LinearExprT = (
+        m.makespan
+        if plan.goal == "shortest"
+        else cp.LinearExpr.sum(list(m.over.values()))
+    )
+    m.goal_weight = weight
+    m.goal_objective = main * weight + cp.LinearExpr.sum(list(m.late.values()))  # type: ignore[operator]
+    model.minimize(m.goal_objective)
+    return m
+
+
+CLIQUES = True
+
+
+def _add_cliques(m: _Model, plan: _Plan) -> None:
+    """Redundant no-overlap constraints over activities that exclude each other.
+
+    Two activities whose demands on some crew exceed its capacity together
+    can never overlap. A set of such activities, each pair excluding each
+    other, may be given a disjunctive constraint as well as the cumulatives:
+    its propagation (edge finding, not-first/not-last) is stronger than the
+    cumulative's. Cliques are grown greedily, largest demand first, starting
+    from each crew's set of activities that need more than half of it, among
+    the activities counted on the same axis as that crew.
+    """
+    tl = plan.tl
+    held = [i for i in range(tl.size) if tl.dur[i] and tl.demands[i]]
+    need = {i: dict(tl.demands[i]) for i in held}
+
+    def clash(a: int, b: int) -> bool:
+        return any(u + need[b].get(k, 0) > tl.capacity[k] for k, u in need[a].items())
+
+    weight = {i: max(u / tl.capacity[k] for k, u in need[i].items()) for i in held}
+    seen: set[frozenset[int]] = set()
+    for k, cap in enumerate(tl.capacity):
+        axis = tl.axis[k]
+        core = [i for i in held if 2 * need[i].get(k, 0) > cap]
+        if len(core) < 2:
+            continue
+        same = [
+            j
+            for j in held
+            if (axis is not None and tl.cal[j] == axis)
+            or (axis is None and (j, None) in m.intervals)
+        ]
+        clique = list(core)
+        for j in sorted(same, key=lambda x: (-weight[x], x)):
+            if j not in clique and all(clash(j, c) for c in clique):
+                clique.append(j)
+        key = frozenset(clique)
+        if len(clique) >= 3 and key not in seen:
+            seen.add(key)
+            m.model.add_no_overlap([m.interval(i, k) for i in sorted(clique)])
+
+
+def _add_relation(m: _Model, plan: _Plan, r: Relation) -> None:
+    tl = plan.tl
+    model = m.model
+    p, s = r.pred, r.succ
+    cal_p, cal_s = tl.cal[p], tl.cal[s]
+    use_end = r.from_end and tl.dur[p] >= 1
+    target = tl.dur[s] if r.to_end else 0
+    if (cal_p == cal_s and r.cl == 0) or (tl.identity[cal_p] and tl.identity[cal_s]):
+        # One calendar (or two that work every day): positions are linear,
+        # W[D[q + skip] + use_end] = q + skip + use_end, calendar days too.
+        model.add(
+            m.pos[s] + target >= m.pos[p] + (tl.dur[p] if use_end else 0) + r.cl + r.wl
+        )
+        return
+    # Across calendars, or a calendar-day lag: the successor-calendar
+    # position of the predecessor's point, as a table over its window.
+    table = []
+    for q in range(plan.es[p], plan.ls[p] + 1):
+        point = tl.end(p, q) if use_end else tl.day(cal_p, q)
+        table.append(tl.pos(cal_s, point + r.cl))
+    w = model.new_int_var(min(table), max(table), f"rel_{r.index}")
+    model.add_element(m.pos[p] - plan.es[p], table, w)
+    model.add(m.pos[s] + target >= w + r.wl)
+    m.rel_w.append((r, w))
+
+
+def _add_smoothing(m: _Model, plan: _Plan) -> cp.LinearExprT:
+    """Day-to-day changes of each crew's demand; returns their sum.
+
+    A boolean per activity and possible start (only the positions its window
+    allows) says where it starts; the change of a crew's demand from one unit
+    of its axis to the next (a working day, or a calendar day for a crew
+    whose activities mix calendars) is what starts there minus what ends,
+    and the sum of its absolute values over crews and days is the measure of
+    unevenness.
+    """
+    tl, model = plan.tl, m.model
+    delta: list[dict[int, list[tuple[int, cp.IntVar | None]]]] = [
+        {} for _ in tl.capacity
+    ]
+    for i in range(tl.size):
+        if tl.dur[i] == 0 or not tl.demands[i]:
+            continue
+        window = range(plan.es[i], plan.ls[i] + 1)
+        choices: list[tuple[int, cp.IntVar | None]] = []
+        for q in window:
+            x = None
+            if len(window) > 1:
+                x = model.new_bool_var(f"at_{i}_{q}")
+                m.starts_at[(i, q)] = x
+            choices.append((q, x))
+        if len(choices) > 1:
+            xs = [x for _, x in choices if x is not None]
+            model.add_exactly_one(xs)
+            model.add(
+                m.pos[i] == cp.LinearExpr.weighted_sum(xs, [q for q, _ in choices])
+            )
+        for k, u in tl.demands[i]:
+            for q, x in choices:
+                a, b = tl.on_axis(k, i, q)
+                delta[k].setdefault(a, []).append((u, x))
+                delta[k].setdefault(b, []).append((-u, x))
+    total: list[cp.LinearExprT] = []
+    fixed = 0
+    for k in range(len(tl.capacity)):
+        for _unit, terms in sorted(delta[k].items()):
+            const = sum(u for u, x in terms if x is None)
+            var_terms = [(u, x) for u, x in terms if x is not None]
+            if not var_terms:
+                fixed += abs(const)
+                continue
+            a = model.new_int_var(0, sum(abs(u) for u, _ in terms), "change")  # type: ignore[assignment]
+            expr = cp.LinearExpr.weighted_sum(
+                [x for _, x in var_terms], [u for u, _ in var_terms]
+            )
+            model.add(a >= expr + const)
+            model.add(a >= -expr - const)
+            m.tv.append((a, var_terms, const))  # type: ignore[arg-type]
+            total.append(a)
+    return cp.LinearExpr.sum(total) + fixed
+
+
+def _add_stability(m: _Model, plan: _Plan) -> cp.LinearExprT:
+    """Moved activities, then working days moved; returns the weighted sum.
+
+    An activity counts as moved when its start date differs from the previous
+    one; days moved are counted in working days of its calendar. The count
+    weighs more than any total of days, so fewer moves always win.
+    """
+    tl, model = plan.tl, m.model
+    count: list[cp.LinearExprT] = []
+    days = []
+    worst_total = 0
+    for i, prev in sorted(plan.previous.items()):
+        c = tl.cal[i]
+        pp = tl.pos(c, _clamp_day(tl, prev))
+        lo, hi = plan.es[i], plan.ls[i]
+        worst = max(abs(hi - pp), abs(pp - lo))
+        d = model.new_int_var(0, worst, f"moved_days_{i}")
+        model.add(d >= m.pos[i] - pp)
+        model.add(d >= pp - m.pos[i])
+        if tl.day(c, pp) == prev and lo <= pp <= hi:
+            moved = model.new_bool_var(f"moved_{i}")
+            model.add(m.pos[i] == pp).only_enforce_if(~moved)
+            count.append(moved)
+            m.moved[i] = (moved, d, pp)
+        else:
+            m.moved[i] = (None, d, pp)
+            count.append(1)
+        days.append(d)
+        worst_total += worst
+    weight = worst_total + 1
+    return cp.LinearExpr.sum(count) * weight + cp.LinearExpr.sum(days)
+
+
+def _clamp_day(tl: Timeline, day: int) -> int:
+    return min(max(day, -tl.pad + 1), tl.horizon + tl.pad - 1)
+
+
+def _hint(m: _Model, plan: _Plan, pos: list[int]) -> None:
+    """Hint every variable of the model with the schedule ``pos``."""
+    tl, model = plan.tl, m.model
+    model.clear_hints()
+    fin = [tl.finish_day(i, pos[i]) for i in range(tl.size)]
+    for i in range(tl.size):
+        model.add_hint(m.pos[i], pos[i])
+    for i, v in m.start.items():
+        model.add_hint(v, tl.day(tl.cal[i], pos[i]))
+    for i, v in m.end.items():
+        model.add_hint(v, tl.end(i, pos[i]))
+    for i, v in m.finish.items():
+        model.add_hint(v, fin[i])
+    for i, v in m.span.items():
+        model.add_hint(v, tl.end(i, pos[i]) - tl.day(tl.cal[i], pos[i]))
+    for r, w in m.rel_w:
+        use_end = r.from_end and tl.dur[r.pred] >= 1
+        point = (
+            tl.end(r.pred, pos[r.pred])
+            if use_end
+            else tl.day(tl.cal[r.pred], pos[r.pred])
+        )
+        model.add_hint(w, tl.pos(tl.cal[r.succ], point + r.cl))
+    made = max(max(fin), plan.logic_finish)
+    model.add_hint(m.makespan, made)
+    for c, v in m.finish_pos.items():
+        model.add_hint(v, tl.Wl[c][made + 1 + tl.pad])
+    for i, v in m.late.items():
+        model.add_hint(v, max(0, fin[i] - plan.deadline[i]))
+    if m.over:
+        over = _over_capacity(tl, pos)
+        for k, v in m.over.items():
+            model.add_hint(v, over[k])
+    values: dict[int, int] = {}
+    for (i, q), x in m.starts_at.items():
+        value = int(pos[i] == q)
+        values[x.index] = value
+        model.add_hint(x, value)
+    for a, terms, const in m.tv:
+        model.add_hint(a, abs(sum(u * values[x.index] for u, x in terms) + const))
+    for i, (moved, d, pp) in m.moved.items():
+        if moved is not None:
+            model.add_hint(moved, int(pos[i] != pp))
+        model.add_hint(d, abs(pos[i] - pp))
+
+
+def _load(tl: Timeline, pos: list[int]) -> list[np.ndarray]:
+    """Units per crew along its axis, unavailable blocks included."""
+    load = []
+    for k, cap in enumerate(tl.capacity):
+        ends = [tl.on_axis(k, i, pos[i])[1] for i in range(tl.size)]
+        size = max([*ends, *(b for _, b in tl.axis_blocks[k]), 0]) + 1
+        row = np.zeros(size, dtype=np.int64)
+        for a, b in tl.axis_blocks[k]:
+            row[a:b] += cap
+        load.append(row)
+    for i in range(tl.size):
+        if tl.dur[i] == 0:
+            continue
+        for k, u in tl.demands[i]:
+            a, b = tl.on_axis(k, i, pos[i])
+            load[k][max(a, 0) : max(b, 0)] += u
+    return load
+
+
+def _over_capacity(tl: Timeline, pos: list[int]) -> list[int]:
+    """Per crew, the most units over capacity on any unit of its axis."""
+    load = _load(tl, pos)
+    return [
+        max(int(load[k].max(initial=0)) - cap, 0) for k, cap in enumerate(tl.capacity)
+    ]
+
+
+# ---------------------------------------------------------------------------
+# Solve and read out
+
+
+@dataclass
+class _Solved:
+    status: int
+    pos: list[int] | None
+    objective: int | None
+    bound: int | None
+    stats: SolveStats
+
+
+class _Progress(cp.CpSolverSolutionCallback):
+    """Reports each better solution of the goal solve to ``on_progress``."""
+
+    def __init__(
+        self, m: _Model, plan: _Plan, report: ProgressFn, started: float
+    ) -> None:
+        super().__init__()
+        self.m, self.plan, self.report, self.started = m, plan, report, started
+
+    def on_solution_callback(self) -> None:
+        tl = self.plan.tl
+        finish = tl.date(self.value(self.m.makespan))
+        bound = None
+        if self.plan.goal == "shortest":
+            raw = int(np.ceil(self.best_objective_bound - 1e-9))
+            bound = tl.date(max(raw // self.m.goal_weight, self.plan.logic_finish))
+        self.report(finish, bound, time.perf_counter() - self.started)
+
+
+def _parameters(
+    solver: cp.CpSolver, time_limit: float, workers: int, seed: int
+) -> None:
+    """Solver settings: the limits given, plus what measured best.
+
+    On two workers CP-SAT runs one full search beside its neighbourhood
+    searches. Without the linear relaxation (``no_lp``) that search
+    propagates faster and proved more optima on PSPLIB J30 in 10 s (475 of
+    480 against 469 with the default ``default_lp``; mean 0.26 s against
+    0.41 s, 2 workers, this machine); more workers keep CP-SAT's own mix.
+    Precedences between tasks of one cumulative feed its propagation.
+    """
+    params = solver.parameters
+    params.max_time_in_seconds = max(time_limit, 0.05)
+    params.num_workers = workers
+    params.random_seed = seed
+    if workers <= 2:
+        params.subsolvers.append("no_lp")
+    params.use_hard_precedences_in_cumulative = True
+    params.exploit_all_precedences = True
+
+
+def solve(
+    m: _Model,
+    plan: _Plan,
+    *,
+    phase: str,
+    hint: list[int] | None,
+    time_limit: float,
+    workers: int,
+    seed: int,
+    on_progress: ProgressFn | None = None,
+) -> _Solved:
+    """One CP-SAT solve of the current objective; maps nothing, hides nothing.
+
+    Raises :class:`RuntimeError` on MODEL_INVALID (a bug in the builder).
+    """
+    if hint is not None:
+        _hint(m, plan, hint)
+    solver = cp.CpSolver()
+    _parameters(solver, time_limit, workers, seed)
+    callback = (
+        _Progress(m, plan, on_progress, time.perf_counter()) if on_progress else None
+    )
+    status = solver.solve(m.model, callback)
+    if status == cp.MODEL_INVALID:
+        raise RuntimeError(f"levelling model invalid: {m.model.validate()}")
+    found = status in (cp.OPTIMAL, cp.FEASIBLE)
+    objective = int(round(solver.objective_value)) if found else None
+    bound = (
+        int(np.ceil(solver.best_objective_bound - 1e-9))
+        if status != cp.INFEASIBLE
+        else None
+    )
+    stats = SolveStats(
+        phase=phase,
+        status=solver.status_name(status),
+        wall_time=solver.wall_time,
+        branches=solver.num_branches,
+        conflicts=solver.num_conflicts,
+        objective=objective,
+        bound=bound,
+    )
+    pos = read_out(solver, m, plan) if found else None
+    return _Solved(status, pos, objective, bound, stats)  # type: ignore[arg-type]
+
+
+def read_out(solver: cp.CpSolver, m: _Model, plan: _Plan) -> list[int]:
+    """Start positions (each on its activity's calendar) of the solution."""
+    return [solver.value(v) for v in m.pos]
+
+
+# ---------------------------------------------------------------------------
+# Crew links, passes and float
+
+
+@dataclass(frozen=True, slots=True)
+class _Link:
+    crew: int
+    pred: int | None  # activity, or None for a block
+    succ: int | None
+    units: int
+    block: tuple[int, int] | None = None
+
+
+def crew_flow(
+    tl: Timeline, pos: list[int], extra: list[int] | None = None
+) -> list[_Link]:
+    """Which activity hands how many units of each crew on to which.
+
+    Counted on each crew's axis (see :class:`~.heuristic.Timeline`), as in
+    the model. Activities take units in start order; each takes first units
+    never used, then those released longest ago, and the units released last
+    only when it needs them — so a link is tight (the successor starts as the
+    predecessor ends) only where the hand-over really sets the start, and
+    every other link leaves the most slack. Unavailable periods take the whole
+    capacity like an activity. Every activity that takes units from another
+    gets a link from it; the links are a resource flow, so any schedule that
+    keeps them and the logic keeps every crew within capacity.
+    """
+    links: dict[tuple[int, int | None, int | None], int] = {}
+    blocks_of: dict[tuple[int, int], tuple[int, int]] = {}
+    for k, cap in enumerate(tl.capacity):
+        nodes = []
+        for i in range(tl.size):
+            if tl.dur[i] == 0:
+                continue
+            for kk, u in tl.demands[i]:
+                if kk == k:
+                    s, e = tl.on_axis(k, i, pos[i])
+                    nodes.append((s, e, 1, i, u))
+        if not nodes:
+            continue
+        axis = tl.axis[k]
+        for b, (a, z) in enumerate(tl.blocks[k]):
+            qa, qz = (a, z) if axis is None else (tl.pos(axis, a), tl.pos(axis, z))
+            if qa < qz:
+                nodes.append((qa, qz, 0, -1 - b, cap))
+                blocks_of[(k, -1 - b)] = (a, z)
+        nodes.sort()
+        total = cap + (extra[k] if extra else 0)
+        pool: list[list[int | None]] = [[-(10**9), None, total]]
+        busy: list[tuple[int, int, int]] = []
+        for s, e, _, node, u in nodes:
+            while busy and busy[0][0] <= s:
+                released, held, units = heapq.heappop(busy)
+                pool.append([released, held, units])
+            pool.sort(key=lambda c: (c[0] or 0, c[1] if c[1] is not None else 0))
+            need = u
+            for chunk in pool:
+                if need == 0:
+                    break
+                take = min(need, int(chunk[2] or 0))
+                if take == 0:
+                    continue
+                chunk[2] = int(chunk[2] or 0) - take
+                need -= take
+                if chunk[1] is not None and (int(chunk[1]) >= 0 or node >= 0):
+                    key = (k, int(chunk[1]), node)
+                    links[key] = links.get(key, 0) + take
+            if need:
+                raise ScheduleRejected(
+                    f"crew {tl.network.crews[k].key} is over capacity on day {s}"
+                )
+            pool = [c for c in pool if c[2]]
+            heapq.heappush(busy, (e, node, u))
+    out = []
+    for (k, a, b), units in sorted(  # type: ignore[assignment]
+        links.items(), key=lambda x: (x[0][0], x[0][1], x[0][2])
+    ):
+        block = blocks_of.get((k, a)) or blocks_of.get((k, b))
+        out.append(
+            _Link(
+                k,
+                a if a is not None and a >= 0 else None,
+                b if b is not None and b >= 0 else None,
+                units,
+                block,
+            )
+        )
+    return out
+
+
+def _floor(tl: Timeline, c: int) -> int:
+    """The least position a late pass may reach: far enough inside the tables
+    that every relation can still be read backwards."""
+    reach = max(tl.dur, default=0) + max((abs(r.wl) for r in tl.relations), default=0)
+    cl = max((abs(r.cl) for r in tl.relations), default=0)
+    return tl.Wl[c][cl + 1] + reach + 1
+
+
+def late_positions(
+    tl: Timeline,
+    finish_day: int | None,
+    links: list[_Link],
+    *,
+    end: int | None = None,
+    deadlines: bool = True,
+) -> list[int]:
+    """The backward pass on the logic and the crew links: latest starts.
+
+    Every activity finishes by ``finish_day`` — or, given ``end`` instead, ends
+    by that instant (a milestone's day at or before it), as the critical path
+    reads its project end — by its own deadline when ``deadlines``, before
+    each unavailable period it hands its crew to, and early enough for every
+    successor by relation or crew link to keep its latest start. Positions
+    are each activity's own calendar. Without links, with ``end`` the latest
+    end, this is exactly the critical path's backward pass.
+    """
+    n = tl.size
+    net = tl.network
+    if end is not None:
+        ub = [tl.latest_for_end(i, end) for i in range(n)]
+    else:
+        assert finish_day is not None
+        ub = [tl.latest_for_finish(i, finish_day) for i in range(n)]
+    if deadlines:
+        for i, dl in enumerate(net.act_deadline.tolist()):
+            if dl != NO_DATE:
+                ub[i] = min(ub[i], tl.latest_for_finish(i, int(dl)))
+    crew_succ: list[list[int]] = [[] for _ in range(n)]
+    for link in links:
+        if link.pred is None:
+            continue
+        if link.succ is None:
+            assert link.block is not None
+            c = tl.cal[link.pred]
+            ub[link.pred] = min(
+                ub[link.pred], tl.pos(c, link.block[0]) - tl.dur[link.pred]
+            )
+        else:
+            crew_succ[link.pred].append(link.succ)
+    floor = [_floor(tl, tl.cal[i]) for i in range(n)]
+    ls = [max(u, floor[i]) for i, u in enumerate(ub)]
+    order = list(reversed(tl.order))
+    for _sweep in range(n + 2):
+        changed = False
+        for i in order:
+            c = tl.cal[i]
+            best = ls[i]
+            for r in tl.succs[i]:
+                best = min(best, tl.backward(r, ls[r.succ]))
+            for j in crew_succ[i]:
+                best = min(best, tl.pos(c, tl.day(tl.cal[j], ls[j])) - tl.dur[i])
+            best = max(best, floor[i])
+            if best < ls[i]:
+                ls[i] = best
+                changed = True
+        if not changed:
+            return ls
+        if not links:
+            return ls
+    raise ScheduleRejected("the backward pass over crew links does not settle")
+
+
+def left_justify(tl: Timeline, pos: list[int], links: list[_Link]) -> list[int]:
+    """The forward pass on the logic and the crew links, from the lower bounds.
+
+    Moves every activity as early as its relations, crew links and date bounds
+    allow; never later than ``pos`` (which satisfies them all), so crews stay
+    within capacity and the finish does not grow.
+    """
+    n = tl.size
+    crew_pred: list[list[int]] = [[] for _ in range(n)]
+    lb = [tl.pos(tl.cal[i], tl.lb_day[i]) for i in range(n)]
+    for link in links:
+        if link.succ is None:
+            continue
+        if link.pred is None:
+            assert link.block is not None
+            c = tl.cal[link.succ]
+            lb[link.succ] = max(lb[link.succ], tl.pos(c, link.block[1]))
+        else:
+            crew_pred[link.succ].append(link.pred)
+    new = list(lb)
+    for _sweep in range(n + 2):
+        changed = False
+        for j in tl.order:
+            c = tl.cal[j]
+            best = new[j]
+            for r in tl.preds[j]:
+                best = max(best, tl.forward(r, new[r.pred]))
+            for i in crew_pred[j]:
+                best = max(best, tl.pos(c, tl.end(i, new[i])))
+            if best > new[j]:
+                new[j] = best
+                changed = True
+        if not changed:
+            break
+    else:
+        raise ScheduleRejected("the forward pass over crew links does not settle")
+    if any(a > b for a, b in zip(new, pos, strict=True)):
+        raise ScheduleRejected("left justification moved an activity later")
+    return new
+
+
+def _free_float(
+    tl: Timeline, pos: list[int], links: list[_Link], end: int
+) -> list[int]:
+    """Slack to the nearest successor by relation or crew link, at the levelled
+    dates, and never past the project finish."""
+    n = tl.size
+    ff = [tl.latest_for_end(i, end) - pos[i] for i in range(n)]
+    for r in tl.relations:
+        ff[r.pred] = min(ff[r.pred], tl.backward(r, pos[r.succ]) - pos[r.pred])
+    for link in links:
+        i = link.pred
+        if i is None:
+            continue
+        c = tl.cal[i]
+        if link.succ is None:
+            assert link.block is not None
+            bound = tl.pos(c, link.block[0]) - tl.dur[i]
+        else:
+            bound = tl.pos(c, tl.day(tl.cal[link.succ], pos[link.succ])) - tl.dur[i]
+        ff[i] = min(ff[i], bound - pos[i])
+    return ff
+
+
+def _driving_path(
+    tl: Timeline,
+    pos: list[int],
+    links: list[_Link],
+    total_float: list[int],
+) -> tuple[LevelStep, ...]:
+    """The path of what holds each start, from a date bound to the finish.
+
+    A relation or crew link holds a start when it allows no earlier date. From
+    the last activity the search walks back along such links — from the
+    predecessor with the least float first, a relation before a crew, then the
+    first in the document — to an activity held by a date bound (project
+    start, data date, ``not_before``) or by a crew's return from an
+    unavailable period. Loops of tight links (leads, crew links and calendar
+    rounding can close one) are never walked twice, and a branch that cannot
+    reach a bound is left for the next. A left-justified schedule always has
+    such a path; when the levelling held an activity back (smoothing, or
+    keeping the previous plan), the path ends there with a ``"levelling"``
+    step.
+    """
+    net = tl.network
+    n = tl.size
+    crew_in: list[list[_Link]] = [[] for _ in range(n)]
+    for link in links:
+        if link.succ is not None:
+            crew_in[link.succ].append(link)
+    rank = net.topology.rank.tolist()
+    fin = [tl.finish_day(i, pos[i]) for i in range(n)]
+    end = [tl.end(i, pos[i]) for i in range(n)]
+    sinks = {i for i in range(n) if not tl.succs[i]}
+    final = max(
+        range(n),
+        key=lambda i: (fin[i], end[i], i in sinks, -total_float[i], rank[i]),
+    )
+
+    def options(node: int) -> list[tuple[LevelDriver, int]]:
+        c = tl.cal[node]
+        found: list[tuple[int, int, int, LevelDriver]] = []
+        for r in tl.preds[node]:
+            if tl.forward(r, pos[r.pred]) == pos[node]:
+                unit = "calendar_days" if net.rel_calendar_days[r.index] else "workdays"
+                driver = LevelDriver(
+                    "relation",
+                    pred=net.keys[r.pred],
+                    type=RELATION_TYPES[r.type],
+                    lag=int(net.rel_lag[r.index]),
+                    lag_unit=unit,
+                )
+                found.append((total_float[r.pred], 0, r.pred, driver))
+        for link in crew_in[node]:
+            if link.pred is not None and tl.pos(c, end[link.pred]) == pos[node]:
+                driver = LevelDriver(
+                    "crew", pred=net.keys[link.pred], crew=net.crews[link.crew].key
+                )
+                found.append((total_float[link.pred], 1, link.pred, driver))
+        found.sort(key=lambda o: (o[0], o[1], o[2]))
+        return [(d, p) for _, _, p, d in found]
+
+    def step(node: int, driver: LevelDriver) -> LevelStep:
+        return LevelStep(net.keys[node], net.names[node], driver)
+
+    # Depth-first, iteratively: ``trail`` holds the walk, ``todo`` the options
+    # left at each of its nodes, ``via`` the driver taken out of each.
+    failed: set[int] = set()
+    trail = [final]
+    on_trail = {final}
+    todo = [options(final)]
+    via: list[LevelDriver] = []
+    while trail:
+        node = trail[-1]
+        if todo[-1]:
+            driver, pred = todo[-1].pop(0)
+            if pred in failed or pred in on_trail:
+                continue
+            via.append(driver)
+            trail.append(pred)
+            on_trail.add(pred)
+            todo.append(options(pred))
+            continue
+        bound = _bound_driver(tl, pos, node, crew_in)
+        if bound is not None:
+            steps = [step(node, bound)]
+            for k in range(len(trail) - 2, -1, -1):
+                steps.append(step(trail[k], via[k]))
+            return tuple(steps)
+        failed.add(node)
+        trail.pop()
+        on_trail.discard(node)
+        todo.pop()
+        if via:
+            via.pop()
+    return _held_path(tl, pos, final, options, step)
+
+
+def _held_path(
+    tl: Timeline,
+    pos: list[int],
+    final: int,
+    options: Callable[[int], list[tuple[LevelDriver, int]]],
+    step: Callable[[int, LevelDriver], LevelStep],
+) -> tuple[LevelStep, ...]:
+    """The greedy walk back to where the levelling chose to hold a start."""
+    steps: list[LevelStep] = []
+    seen: set[int] = set()
+    node = final
+    while True:
+        seen.add(node)
+        choice = [(d, p) for d, p in options(node) if p not in seen]
+        if not choice:
+            day = tl.date(tl.day(tl.cal[node], pos[node]))
+            steps.append(step(node, LevelDriver("levelling", date=day)))
+            return tuple(reversed(steps))
+        driver, node_before = choice[0]
+        steps.append(step(node, driver))
+        node = node_before
+
+
+def _bound_driver(
+    tl: Timeline, pos: list[int], i: int, crew_in: list[list[_Link]]
+) -> LevelDriver | None:
+    """The date bound that holds ``i`` where it is, or ``None``."""
+    net = tl.network
+    c = tl.cal[i]
+    if tl.pos(c, tl.lb_day[i]) == pos[i]:
+        nb = int(net.not_before[i])
+        if nb != NO_DATE:
+            day = net.start + dt.timedelta(days=nb)
+            if (net.data_date is None or day > net.data_date) and day > net.start:
+                return LevelDriver("not_before", date=day)
+        if net.data_date is not None and net.data_date > net.start:
+            return LevelDriver("data_date", date=net.data_date)
+        return LevelDriver("project_start", date=net.start)
+    for link in crew_in[i]:
+        if link.pred is None and link.block is not None:
+            if tl.pos(c, link.block[1]) == pos[i]:
+                return LevelDriver(
+                    "crew_unavailable",
+                    crew=net.crews[link.crew].key,
+                    date=tl.date(link.block[1]),
+                )
+    return None
+
+
+def _move_reasons(tl: Timeline, plan: _Plan, pos: list[int]) -> tuple[Move, ...]:
+    """The activities that moved from the previous plan, and why.
+
+    Rule, in topological order: an activity moved for a *network change* when,
+    at the previous dates, one of its incoming relations, its date bounds,
+    its calendar or the finish limit is broken, or a predecessor that moved
+    for a network change pushes it now; else for a *crew change* when, at the
+    previous dates, a crew it uses is over capacity (or away) on one of its
+    days, or a predecessor that moved for a crew change pushes it now; else
+    for the *goal*.
+    """
+    net = tl.network
+    if not plan.previous:
+        return ()
+    before = list(pos)
+    prev_pos: dict[int, int] = {}
+    for i, day in plan.previous.items():
+        prev_pos[i] = tl.pos(tl.cal[i], _clamp_day(tl, day))
+        before[i] = prev_pos[i]
+    load = _load(tl, before)
+    reason: dict[int, str] = {}
+    moves = []
+    for i in tl.order:
+        if i not in plan.previous:
+            continue
+        c = tl.cal[i]
+        prev_day = plan.previous[i]
+        new_day = tl.day(c, pos[i])
+        if new_day == prev_day:
+            continue
+        pp = prev_pos[i]
+        own = (
+            tl.day(c, pp) != prev_day
+            or pp < tl.pos(c, tl.lb_day[i])
+            or (plan.limit is not None and tl.finish_day(i, pp) > plan.limit)
+            or any(tl.forward(r, before[r.pred]) > pp for r in tl.preds[i])
+        )
+        pushed = {
+            reason[r.pred]
+            for r in tl.preds[i]
+            if r.pred in reason and tl.forward(r, pos[r.pred]) > pp
+        }
+        if own or "network change" in pushed:
+            why = "network change"
+        else:
+            over = False
+            for k, _ in tl.demands[i] if tl.dur[i] else ():
+                a, b = tl.on_axis(k, i, pp)
+                peak = int(load[k][max(a, 0) : max(b, 0)].max(initial=0))
+                over = over or peak > tl.capacity[k]
+            why = "crew change" if over or "crew change" in pushed else "goal"
+        reason[i] = why
+        moves.append(
+            Move(
+                net.keys[i],
+                tl.date(prev_day),
+                tl.date(new_day),
+                pos[i] - pp,
+                why,
+            )
+        )
+    order = {k: j for j, k in enumerate(net.keys)}
+    return tuple(sorted(moves, key=lambda mv: order[mv.key]))
+
+
+# ---------------------------------------------------------------------------
+# The whole run
+
+
+def level(
+    network: Network,
+    *,
+    goal: str = "shortest",
+    finish: dt.date | None = None,
+    previous: Mapping[str, dt.date] | None = None,
+    time_limit: float = 10.0,
+    workers: int = 2,
+    seed: int = 0,
+    on_progress: ProgressFn | None = None,
+) -> LevelResult:
+    """Level ``network`` for ``goal``; see the module docstring.
+
+    ``finish``: the latest allowed project finish (inclusive date); for
+    ``"smooth"`` it defaults to the critical-path finish, for ``"shortest"``
+    there is none. ``previous`` maps activity keys to their previous start
+    dates (a stability solve follows the goal). ``time_limit`` is the budget in
+    seconds for all solves together; ``workers`` and ``seed`` go to CP-SAT.
+    ``on_progress(finish, bound, elapsed)`` is called for each better solution
+    of the goal solve (``bound`` a date for ``"shortest"``, else ``None``;
+    ``elapsed`` seconds).
+
+    Raises :class:`~.problems.NetworkInvalid` for a network the critical path
+    refuses, :class:`LevellingInfeasible` when no schedule can meet the crews
+    and limits (each problem names the activity and the crew or date), and
+    :class:`ScheduleRejected` if a schedule fails the independent check.
+    """
+    started = time.perf_counter()
+    if goal not in GOALS:
+        raise ValueError(f"goal must be one of {', '.join(GOALS)}, got {goal!r}")
+    plan = _prepare(network, goal, finish, previous)
+    tl = plan.tl
+    m = build_model(plan)
+    phases = ["goal"] + (["stability"] if plan.previous else [])
+    phases += ["smoothing"] if goal == "smooth" else []
+
+    def budget(left: int) -> float:
+        remaining = time_limit - (time.perf_counter() - started)
+        share = 1.0 if left == 1 else (0.6 if left == len(phases) else 1.0 / left)
+        return max(remaining * share, 0.05)
+
+    hint: list[int] | None
+    if plan.heuristic is not None:
+        hint = list(plan.heuristic.pos)
+    elif goal == "smooth":
+        hint = list(plan.es)
+    else:
+        hint = None
+    stats: list[SolveStats] = []
+    first = solve(
+        m,
+        plan,
+        phase="goal",
+        hint=hint,
+        time_limit=budget(len(phases)),
+        workers=workers,
+        seed=seed,
+        on_progress=on_progress,
+    )
+    stats.append(first.stats)
+    if first.status == cp.INFEASIBLE:
+        raise LevellingInfeasible([_no_schedule(plan)])
+    message = ""
+    if first.pos is None:
+        status = "no_solution_in_time"
+        pos = hint if hint is not None else _any_schedule(plan)
+        message = "the solver found no schedule in time; this is the heuristic's"
+        if (
+            plan.limit is not None
+            and max(tl.finish_day(i, pos[i]) for i in range(tl.size)) > plan.limit
+        ):
+            message += ", and it finishes after the limit"
+    else:
+        status = "optimal" if first.status == cp.OPTIMAL else "feasible"
+        pos = first.pos
+        assert first.objective is not None
+        goal_value = first.objective
+        m.model.add(m.goal_objective <= goal_value)
+        if plan.previous:
+            moves = _add_stability(m, plan)
+            m.model.minimize(moves)
+            got = solve(
+                m,
+                plan,
+                phase="stability",
+                hint=pos,
+                time_limit=budget(len(phases) - 1),
+                workers=workers,
+                seed=seed,
+            )
+            stats.append(got.stats)
+            if got.pos is not None and got.objective is not None:
+                pos = got.pos
+                m.model.add(moves <= got.objective)
+        if goal == "smooth":
+            changes = _add_smoothing(m, plan)
+            m.model.minimize(changes)
+            got = solve(
+                m,
+                plan,
+                phase="smoothing",
+                hint=pos,
+                time_limit=budget(1),
+                workers=workers,
+                seed=seed,
+            )
+            stats.append(got.stats)
+            if got.pos is not None:
+                pos = got.pos
+
+    over = _over_capacity(tl, pos) if goal == "smooth" else [0] * len(tl.capacity)
+    links = crew_flow(tl, pos, over)
+    if goal == "shortest" and not plan.previous:
+        # Nothing asks for a later date: start everything as early as the
+        # logic and the crew hand-overs allow (the finish cannot grow).
+        pos = left_justify(tl, pos, links)
+        links = crew_flow(tl, pos, over)
+    return _result(plan, m, pos, links, over, status, first, stats, started, message)
+
+
+def _any_schedule(plan: _Plan) -> list[int]:
+    """The heuristic without the finish limit: a schedule to show, late."""
+    net = plan.network
+    cap = plan.logic_finish + 1
+    while True:
+        tl = build_timeline(net, cap)
+        es = [
+            tl.pos(tl.cal[i], tl.day(plan.tl.cal[i], p)) for i, p in enumerate(plan.es)
+        ]
+        got, _, _ = best_heuristic(tl, es, es, limit=cap)
+        if got is not None:
+            # Back onto the plan's tables: the same days, the plan's positions.
+            return [
+                plan.tl.pos(tl.cal[i], min(tl.day(tl.cal[i], p), plan.tl.horizon))
+                for i, p in enumerate(got.pos)
+            ]
+        if cap > MAX_HORIZON_DAYS:
+            raise LevellingInfeasible([_no_schedule(plan)])
+        cap *= 2
+
+
+def _no_schedule(plan: _Plan) -> Problem:
+    net = plan.network
+    crews = sorted({net.crews[k].key for k in net.dem_crew.tolist()})
+    limit = net.start + dt.timedelta(days=plan.limit if plan.limit is not None else 0)
+    return Problem(
+        "/crews",
+        "crews_need_longer",
+        f"no schedule keeps every crew ({', '.join(crews)}) within its capacity "
+        f"and finishes by {limit}; the logic alone finishes "
+        f"{net.start + dt.timedelta(days=plan.logic_finish)}",
+    )
+
+
+def _result(
+    plan: _Plan,
+    m: _Model,
+    pos: list[int],
+    links: list[_Link],
+    over: list[int],
+    status: str,
+    first: _Solved,
+    stats: list[SolveStats],
+    started: float,
+    message: str,
+) -> LevelResult:
+    tl, net = plan.tl, plan.network
+    n = tl.size
+    fin = [tl.finish_day(i, pos[i]) for i in range(n)]
+    finish_day = max(fin)
+    # The project end, read as the critical path reads it: the latest end
+    # instant, or the end of the project deadline's day.
+    last_end = max(tl.end(i, pos[i]) for i in range(n))
+    project_end = last_end
+    if net.deadline is not None:
+        project_end = (net.deadline - net.start).days + 1
+    ls = late_positions(tl, None, links, end=project_end)
+    ff = _free_float(tl, pos, links, last_end)
+    tf = [ls[i] - pos[i] for i in range(n)]
+    path = _driving_path(tl, pos, links, tf)
+    starts = {net.keys[i]: tl.date(tl.day(tl.cal[i], pos[i])) for i in range(n)}
+    finishes = {net.keys[i]: tl.date(fin[i]) for i in range(n)}
+    problems = check_schedule(
+        net,
+        starts,
+        finishes=finishes,
+        finish=tl.date(plan.limit) if plan.limit is not None else None,
+        over_capacity={net.crews[k].key: v for k, v in enumerate(over) if v},
+    )
+    if problems:
+        raise ScheduleRejected(
+            "the levelled schedule fails the independent check:\n"
+            + "\n".join(problems[:20])
+        )
+    activities = tuple(
+        LevelledActivity(
+            key=net.keys[i],
+            start=starts[net.keys[i]],
+            finish=finishes[net.keys[i]],
+            late_start=tl.date(tl.day(tl.cal[i], ls[i])),
+            late_finish=tl.date(tl.finish_day(i, ls[i])),
+            total_float=tf[i],
+            free_float=ff[i],
+            critical=tf[i] <= 0,
+            lateness=(
+                max(0, fin[i] - plan.deadline[i]) if i in plan.deadline else None
+            ),
+        )
+        for i in range(n)
+    )
+    weight = m.goal_weight
+    if plan.goal == "shortest":
+        objective = finish_day
+        raw = first.bound if first.bound is not None else plan.logic_finish * weight
+        objective_bound = min(max(raw // weight, plan.logic_finish), objective)
+        bound: dt.date | None = tl.date(objective_bound)
+    else:
+        objective = sum(over)
+        raw = first.bound if first.bound is not None else 0
+        objective_bound = min(max(raw // weight, 0), objective)
+        bound = None
+    gap = 100.0 * (objective - objective_bound) / objective if objective else 0.0
+    if status == "optimal" and objective != objective_bound:
+        raise ScheduleRejected("an optimal schedule that misses its own bound")
+    crew_links = tuple(
+        CrewLink(
+            net.crews[link.crew].key,
+            net.keys[link.pred] if link.pred is not None else None,
+            net.keys[link.succ] if link.succ is not None else None,
+            link.units,
+            (tl.date(link.block[0]), tl.date(link.block[1] - 1))
+            if link.block is not None and (link.pred is None or link.succ is None)
+            else None,
+        )
+        for link in links
+    )
+    heuristic_finish = (
+        tl.date(plan.heuristic.finish) if plan.heuristic is not None else None
+    )
+    return LevelResult(
+        status=status,
+        goal=plan.goal,
+        finish=tl.date(finish_day),
+        bound=bound,
+        gap_percent=gap,
+        objective=objective,
+        objective_bound=objective_bound,
+        activities=activities,
+        moved=_move_reasons(tl, plan, pos),
+        crew_links=crew_links,
+        critical_path=path,
+        over_capacity=tuple((net.crews[k].key, v) for k, v in enumerate(over)),
+        heuristic_finish=heuristic_finish,
+        stats=tuple(stats),
+        wall_time=time.perf_counter() - started,
+        message=message,
+    )
+
+
+__all__ = [
+    "GOALS",
+    "CrewLink",
+    "LevelDriver",
+    "LevelResult",
+    "LevelStep",
+    "LevelledActivity",
+    "LevellingInfeasible",
+    "Move",
+    "ScheduleRejected",
+    "SolveStats",
+    "build_model",
+    "crew_flow",
+    "late_positions",
+    "left_justify",
+    "level",
+    "read_out",
+    "solve",
+]
