@@ -1342,23 +1342,23 @@ def _driving_path(
     def step(node: int, driver: LevelDriver) -> LevelStep:
         return LevelStep(net.keys[node], net.names[node], driver)
 
-    # Depth-first, iteratively: ``trail`` holds the walk, ``todo`` the options
+    # Depth-first, iteratively: ``trail`` holds the walk, ``pending`` the options
     # left at each of its nodes, ``via`` the driver taken out of each.
     failed: set[int] = set()
     trail = [final]
     on_trail = {final}
-    todo = [options(final)]
+    pending = [options(final)]
     via: list[LevelDriver] = []
     while trail:
         node = trail[-1]
-        if todo[-1]:
-            driver, pred = todo[-1].pop(0)
+        if pending[-1]:
+            driver, pred = pending[-1].pop(0)
             if pred in failed or pred in on_trail:
                 continue
             via.append(driver)
             trail.append(pred)
             on_trail.add(pred)
-            todo.append(options(pred))
+            pending.append(options(pred))
             continue
         bound = _bound_driver(tl, pos, node, crew_in)
         if bound is not None:
@@ -1369,7 +1369,7 @@ def _driving_path(
         failed.add(node)
         trail.pop()
         on_trail.discard(node)
-        todo.pop()
+        pending.pop()
         if via:
             via.pop()
     return _held_path(tl, pos, final, options, step)
