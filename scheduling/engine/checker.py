@@ -20,6 +20,15 @@ Conventions checked (DESIGN.md, "Time and dates"):
 * every start is on or after the project start, the data date and the
   activity's ``not_before``; every finish is on or before ``finish`` when
   given;
+* progress (see :mod:`.progress`, checked here from the progress columns, not
+  from its work network): finished work starts and finishes on its actual
+  dates and holds no crew; started work starts on its actual start and its
+  remaining work (remaining days, else the share of percent complete, else
+  the duration less the working days since the start) starts on a working
+  day on or after the data date and holds the crews; relations do not bind
+  finished work, nor started work under progress override; relations into
+  started work under retained logic bind its remaining work; SS/SF read a
+  predecessor's actual start, FS/FF the end of its (remaining) work;
 * each crew, on each date, carries no more units than its capacity, and none
   at all on the dates of its unavailable periods. An activity loads its crews
   on its own working days from start to finish. A crew's own calendar does not
@@ -31,6 +40,7 @@ from __future__ import annotations
 import datetime as dt
 from collections import defaultdict
 from collections.abc import Mapping
+from dataclasses import dataclass
 
 from .calendars import WorkCalendar
 from .network import FF, FS, NO_DATE, RELATION_TYPES, SF, SS, Network
@@ -109,10 +119,15 @@ def check_schedule(
     dur = [int(d) for d in net.duration]
     acal = [int(c) for c in net.act_calendar]
     start = [starts[k] for k in keys]
-    fin = [finish_of(cals[acal[i]], start[i], dur[i]) for i in range(net.size)]
+    work = _Work.of(net, start, finishes, out)
+    if work is None:
+        return out
+    fin = work.finish
 
     for i, key in enumerate(keys):
         cal = cals[acal[i]]
+        if work.state[i] != "not_started":
+            continue  # checked by _Work against what happened on site
         if not cal.is_workday(start[i]):
             out.append(
                 f"activity {key}: starts {start[i]}, not a working day of calendar "
@@ -144,48 +159,165 @@ def check_schedule(
                 f"activity {key}: finishes {fin[i]}, after the finish limit {finish}"
             )
 
-    out += _check_relations(net, start, fin, dur, acal)
-    out += _check_crews(net, start, fin, dur, acal, over_capacity or {})
+    out += _check_relations(net, start, work, acal)
+    out += _check_crews(net, work, acal, over_capacity or {})
     return out
 
 
+@dataclass
+class _Work:
+    """The work each activity still holds, read from its progress.
+
+    ``first``/``length``/``finish``: the first day, working days and finish
+    day of the work the schedule places — all of it for work not started,
+    the remaining work of a started activity (from the data date on), the
+    actual dates of finished work (``loads`` false: it holds no crew now).
+    ``waits`` is false where relations into the activity no longer bind it:
+    finished work, and started work under progress override.
+    """
+
+    state: list[str]
+    first: list[dt.date]
+    length: list[int]
+    finish: list[dt.date]
+    loads: list[bool]
+    waits: list[bool]
+
+    @classmethod
+    def of(
+        cls,
+        net: Network,
+        start: list[dt.date],
+        finishes: Mapping[str, dt.date] | None,
+        out: list[str],
+    ) -> _Work | None:
+        cals = net.calendars
+        n = net.size
+        dur = [int(d) for d in net.duration]
+        acal = [int(c) for c in net.act_calendar]
+        first = list(start)
+        length = list(dur)
+        fin = [finish_of(cals[acal[i]], start[i], dur[i]) for i in range(n)]
+        state = ["not_started"] * n
+        loads = [True] * n
+        waits = [True] * n
+        prog = net.progress
+        if prog is None or net.data_date is None:
+            return cls(state, first, length, fin, loads, waits)
+        dd = net.data_date
+        override = prog.mode == "progress_override"
+        for i, key in enumerate(net.keys):
+            a_s, a_f = int(prog.actual_start[i]), int(prog.actual_finish[i])
+            if a_s == NO_DATE:
+                continue
+            cal = cals[acal[i]]
+            actual = net.start + dt.timedelta(days=a_s)
+            if start[i] != actual:
+                out.append(
+                    f"activity {key}: starts {start[i]}, not on its actual "
+                    f"start {actual}"
+                )
+            if a_f != NO_DATE:
+                state[i] = "finished"
+                fin[i] = net.start + dt.timedelta(days=a_f)
+                length[i] = max(_count(cal, actual, fin[i] + _DAY), 1 if dur[i] else 0)
+                loads[i] = waits[i] = False
+                if finishes is not None and finishes.get(key, fin[i]) != fin[i]:
+                    out.append(
+                        f"activity {key}: finish given as {finishes[key]}, "
+                        f"not its actual finish {fin[i]}"
+                    )
+                continue
+            state[i] = "started"
+            waits[i] = not override
+            rem, pct = int(prog.remaining[i]), int(prog.percent[i])
+            if rem < 0:
+                if pct >= 0:
+                    rem = -(-dur[i] * (100 - pct) // 100)
+                elif dur[i] == 0:
+                    rem = 0
+                else:
+                    rem = max(dur[i] - _count(cal, actual, dd), 1)
+            if finishes is None or key not in finishes:
+                out.append(
+                    f"activity {key}: started, but no finish given for its "
+                    "remaining work"
+                )
+                return None
+            end = finishes[key]
+            # The remaining work ends on ``end``: walk back to its first day.
+            day, left = end, rem
+            while left > 1 or (left == 1 and not cal.is_workday(day)):
+                left -= cal.is_workday(day)
+                day -= _DAY
+            if rem and not cal.is_workday(end):
+                out.append(
+                    f"activity {key}: finishes {end}, not a working day of "
+                    f"calendar {cal.key}"
+                )
+            if not rem and not cal.is_workday(day):
+                out.append(
+                    f"activity {key}: its remaining work ends {day}, not a "
+                    f"working day of calendar {cal.key}"
+                )
+            if day < dd:
+                out.append(
+                    f"activity {key}: its remaining work starts {day}, "
+                    f"before the data date {dd}"
+                )
+            first[i], length[i], fin[i] = day, rem, end
+        return cls(state, first, length, fin, loads, waits)
+
+
+def _count(cal: WorkCalendar, low: dt.date, high: dt.date) -> int:
+    """Working days of ``cal`` in ``[low, high)``."""
+    day, got = low, 0
+    while day < high:
+        got += cal.is_workday(day)
+        day += _DAY
+    return got
+
+
 def _check_relations(
-    net: Network,
-    start: list[dt.date],
-    fin: list[dt.date],
-    dur: list[int],
-    acal: list[int],
+    net: Network, start: list[dt.date], work: _Work, acal: list[int]
 ) -> list[str]:
     out: list[str] = []
+    fin, length, first = work.finish, work.length, work.first
     m = len(net.rel_pred)
     if not m:
         return out
     caldays = [bool(x) for x in net.rel_calendar_days]
     lags = [int(x) for x in net.rel_lag]
     reach = max((abs(x) for x in lags), default=0) + 2
-    low = min(min(start), net.start) - dt.timedelta(days=reach)
+    low = min(min(start), min(first), net.start) - dt.timedelta(days=reach)
     high = max(fin) + dt.timedelta(days=reach)
     counters = {c: _Counter(net.calendars[c], low, high) for c in set(acal)}
     for r in range(m):
         p, s = int(net.rel_pred[r]), int(net.rel_succ[r])
+        if not work.waits[s]:
+            continue
         kind = int(net.rel_type[r])
         lag = lags[r]
-        from_end = kind in (FS, FF) and dur[p] >= 1
-        point = fin[p] + _DAY if from_end else start[p]
+        # The predecessor's end: the day after its (remaining) work, or the
+        # day of a milestone; its start: when it started.
+        if kind in (FS, FF):
+            point = fin[p] + _DAY if length[p] >= 1 else first[p]
+        else:
+            point = start[p]
         if caldays[r]:
             point += dt.timedelta(days=lag)
             work_lag = 0
         else:
             work_lag = lag
         count = counters[acal[s]]
-        reached = count.before(start[s])
+        reached = count.before(first[s])
         if kind in (FF, SF):
-            reached += dur[s]
+            reached += length[s]
         short = work_lag - (reached - count.before(point))
         if short > 0:
             unit = "calendar days" if caldays[r] else "working days"
             what = "starts" if kind in (FS, SS) else "finishes"
-            end = start[s] if kind in (FS, SS) else fin[s]
+            end = first[s] if kind in (FS, SS) else fin[s]
             out.append(
                 f"relation {net.keys[p]} → {net.keys[s]} ({RELATION_TYPES[kind]} "
                 f"{lag:+d} {unit}): {net.keys[s]} {what} {end}, {short} working "
@@ -195,12 +327,7 @@ def _check_relations(
 
 
 def _check_crews(
-    net: Network,
-    start: list[dt.date],
-    fin: list[dt.date],
-    dur: list[int],
-    acal: list[int],
-    over: Mapping[str, int],
+    net: Network, work: _Work, acal: list[int], over: Mapping[str, int]
 ) -> list[str]:
     out: list[str] = []
     load: list[dict[dt.date, int]] = [defaultdict(int) for _ in net.crews]
@@ -211,11 +338,11 @@ def _check_crews(
         net.dem_units.tolist(),
         strict=True,
     ):
-        if dur[a] < 1:
+        if work.length[a] < 1 or not work.loads[a]:
             continue
         cal = net.calendars[acal[a]]
-        day = start[a]
-        while day <= fin[a]:
+        day = work.first[a]
+        while day <= work.finish[a]:
             if cal.is_workday(day):
                 load[k][day] += u
                 who[k][day].append(net.keys[a])

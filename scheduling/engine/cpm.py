@@ -21,25 +21,35 @@ exactly ``S_succ ≥ E_pred + lag`` and its three siblings. A milestone
 from __future__ import annotations
 
 import datetime as dt
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from .calendars import CalendarTables, days_needed
 from .network import FF, FS, NO_DATE, RELATION_TYPES, SF, Network
 from .problems import NetworkInvalid, Problem
+from .progress import FINISHED, STARTED, Rewrite, rewrite
 
 
 @dataclass(frozen=True, slots=True)
 class Driver:
-    """What sets an activity's early start: a relation, or a date bound."""
+    """What sets an activity's start: a relation, a crew, or a date bound.
 
-    kind: str  # "relation", "project_start", "data_date" or "not_before"
+    ``kind``: ``"relation"`` (a logic relation from ``pred``),
+    ``"project_start"``, ``"data_date"``, ``"not_before"``, ``"actual_start"``
+    (work done or under way starts where it did); after levelling also
+    ``"crew"`` (``pred`` hands units of ``crew`` on), ``"crew_unavailable"``
+    (``crew`` is back on ``date``) and ``"levelling"`` (nothing forces the
+    date: the goal or the stability solve chose it).
+    """
+
+    kind: str
     pred: str | None = None
     type: str | None = None
     lag: int = 0
     lag_unit: str = "workdays"
     date: dt.date | None = None
+    crew: str | None = None
 
     def describe(self) -> str:
         if self.kind == "relation":
@@ -47,8 +57,16 @@ class Driver:
                 f" {self.lag:+d} {self.lag_unit.replace('_', ' ')}" if self.lag else ""
             )
             return f"{self.type}{lag} from {self.pred}"
+        if self.kind == "crew":
+            return f"crew {self.crew} from {self.pred}"
+        if self.kind == "crew_unavailable":
+            return f"crew {self.crew} back on {self.date}"
         if self.kind == "not_before":
             return f"not before {self.date}"
+        if self.kind == "actual_start":
+            return f"started {self.date}"
+        if self.kind == "levelling":
+            return f"held to {self.date} by the levelling"
         return self.kind.replace("_", " ")
 
     def as_dict(self) -> dict[str, object]:
@@ -57,9 +75,33 @@ class Driver:
             out.update(
                 pred=self.pred, type=self.type, lag=self.lag, lag_unit=self.lag_unit
             )
-        elif self.date is not None:
-            out["date"] = self.date.isoformat()
+        elif self.kind == "crew":
+            out.update(pred=self.pred, crew=self.crew)
+        else:
+            if self.crew is not None:
+                out["crew"] = self.crew
+            if self.date is not None:
+                out["date"] = self.date.isoformat()
         return out
+
+
+def date_bound(net: Network, i: int) -> Driver:
+    """The date bound on activity ``i``'s start that binds first.
+
+    Work done or under way: its actual start; else a ``not_before`` after the
+    data date and the project start, the data date, or the project start.
+    """
+    if net.fixed_start is not None and net.fixed_start[i] != NO_DATE:
+        day = net.start + dt.timedelta(days=int(net.fixed_start[i]))
+        return Driver("actual_start", date=day)
+    nb = int(net.not_before[i])
+    if nb != NO_DATE:
+        day = net.start + dt.timedelta(days=nb)
+        if (net.data_date is None or day > net.data_date) and day > net.start:
+            return Driver("not_before", date=day)
+    if net.data_date is not None and net.data_date > net.start:
+        return Driver("data_date", date=net.data_date)
+    return Driver("project_start", date=net.start)
 
 
 @dataclass(frozen=True, slots=True)
@@ -96,6 +138,10 @@ class CpmResult:
     critical_path: tuple[PathStep, ...]
     no_predecessor: tuple[str, ...]
     no_successor: tuple[str, ...]
+    #: With progress: the work network the passes ran on and each activity's
+    #: state (see :mod:`.progress`); ``early_start_pos`` of a started
+    #: activity is then the start of its remaining work.
+    progress: Rewrite | None = None
 
     def dates(self, days: np.ndarray) -> list[str]:
         """ISO dates of an array of table day indices."""
@@ -126,8 +172,18 @@ def critical_path(network: Network) -> CpmResult:
     float may be negative). Every activity starts no earlier than the project
     start (and the data date, when set) and ends no later than the project
     finish; ``not_before`` bounds the start, an activity ``deadline`` the late
-    finish.
+    finish. Progress (actual dates, remaining work) is applied as
+    :mod:`.progress` describes: finished work keeps its actual dates (no
+    float, never critical), started work its actual start, and its remaining
+    work runs from the data date.
     """
+    if network.progress is not None and network.progress.any:
+        rw = rewrite(network)
+        return _read_back(rw, _critical_path(rw.work))
+    return _critical_path(network)
+
+
+def _critical_path(network: Network) -> CpmResult:
     plan = _Plan(network)
     left, right = plan.initial_extent()
     # Python dates end with the year 9999; the tables never reach past it.
@@ -255,6 +311,13 @@ class _Plan:
             lb_day = np.maximum(lb_day, left + (net.data_date - net.start).days)
         nb = net.not_before[self.order]
         lb_day = np.where(nb != NO_DATE, np.maximum(lb_day, left + nb), lb_day)
+        fixed = None
+        if net.fixed_start is not None:
+            # Work under way or done starts where it did, data date or not
+            # (nothing leads into it: see progress.rewrite).
+            fs = net.fixed_start[self.order]
+            fixed = fs != NO_DATE
+            lb_day = np.where(fixed, left + np.where(fixed, fs, 0), lb_day)
         lb = W[w_off + lb_day]
 
         es = self._forward(W, D, lb)
@@ -283,6 +346,8 @@ class _Plan:
 
         D_fin = np.append(D, T)  # the finish cell read by the extra relations
         ls = self._backward(W, D_fin, ub)
+        if fixed is not None:
+            ls = np.where(fixed, es, ls)
         if np.any(ls < self.pad) or np.any(ls >= n_work - self.pad):
             raise _Grow(left=bool(np.any(ls < self.pad)), right=True)
 
@@ -440,7 +505,9 @@ class _Plan:
             ]
             doc = int(order[node])
             if not options:
-                steps.append(PathStep(net.keys[doc], net.names[doc], self._bound(doc)))
+                steps.append(
+                    PathStep(net.keys[doc], net.names[doc], date_bound(net, doc))
+                )
                 break
             _, pred_doc, edge_f = min(options)
             e = int(self.fwd[edge_f])
@@ -454,18 +521,6 @@ class _Plan:
             steps.append(PathStep(net.keys[doc], net.names[doc], driver))
             node = int(self.f_pred[edge_f])
         return tuple(reversed(steps))
-
-    def _bound(self, doc: int) -> Driver:
-        """The date bound that sets an activity's early start (no relation does)."""
-        net = self.net
-        nb = int(net.not_before[doc])
-        if nb != NO_DATE:
-            day = net.start + dt.timedelta(days=nb)
-            if (net.data_date is None or day > net.data_date) and day > net.start:
-                return Driver("not_before", date=day)
-        if net.data_date is not None and net.data_date > net.start:
-            return Driver("data_date", date=net.data_date)
-        return Driver("project_start", date=net.start)
 
     def _result(
         self,
@@ -512,6 +567,76 @@ class _Plan:
             no_predecessor=tuple(keys[i] for i in no_pred.tolist()),
             no_successor=tuple(keys[i] for i in np.sort(order[sinks]).tolist()),
         )
+
+
+def _read_back(rw: Rewrite, work: CpmResult) -> CpmResult:
+    """The work network's result as the result of the network as given.
+
+    Started activities show their actual start as early and late start and
+    the float of their remaining work; finished ones their actual dates, no
+    float, and are not critical. The driving path and the open ends name the
+    activities as given.
+    """
+    net = rw.source
+    n = net.size
+    tables = work.tables
+    prog = net.progress
+    assert prog is not None
+    es_day = work.early_start_day[:n].copy()
+    ef_day = work.early_finish_day[:n].copy()
+    ls_day = work.late_start_day[:n].copy()
+    lf_day = work.late_finish_day[:n].copy()
+    tf = work.total_float[:n].copy()
+    ff = work.free_float[:n].copy()
+    off = (net.start - tables.origin).days
+    status = np.array(rw.status)
+    started = status == STARTED
+    finished = status == FINISHED
+    a_s = prog.actual_start.astype(np.int64) + off
+    a_f = prog.actual_finish.astype(np.int64) + off
+    es_day[started | finished] = a_s[started | finished]
+    ls_day[started | finished] = a_s[started | finished]
+    ef_day[finished] = lf_day[finished] = a_f[finished]
+    tf[finished] = ff[finished] = 0
+    critical = (tf <= 0) & ~finished
+    driving = np.zeros(len(net.rel_pred), dtype=bool)
+    driving[rw.rel_source] = work.driving
+    steps: list[PathStep] = []
+    for step in work.critical_path:
+        key = rw.source_key(step.key)
+        assert key is not None
+        d = step.driver
+        if d.pred is not None:
+            d = replace(d, pred=rw.source_key(d.pred))
+        if steps and steps[-1].key == key:
+            continue  # the work done, then its own remaining work
+        steps.append(PathStep(key, net.names[net.keys.index(key)], d))
+    has_pred = set(net.rel_succ.tolist())
+    has_succ = set(net.rel_pred.tolist())
+    index = {k: i for i, k in enumerate(net.keys)}
+    return CpmResult(
+        network=net,
+        tables=tables,
+        early_start_pos=work.early_start_pos[:n],
+        late_start_pos=work.late_start_pos[:n],
+        early_start_day=es_day,
+        early_finish_day=ef_day,
+        late_start_day=ls_day,
+        late_finish_day=lf_day,
+        total_float=tf,
+        free_float=ff,
+        critical=critical,
+        driving=driving,
+        finish=work.finish,
+        critical_path=tuple(steps),
+        no_predecessor=tuple(
+            k for k in work.no_predecessor if k in index and index[k] not in has_pred
+        ),
+        no_successor=tuple(
+            k for k in work.no_successor if k in index and index[k] not in has_succ
+        ),
+        progress=rw,
+    )
 
 
 def _pointers(counts: np.ndarray) -> np.ndarray:

@@ -11,6 +11,8 @@ import datetime as dt
 from collections.abc import Mapping
 from typing import Any
 
+import numpy as np
+
 from .calendars import WEEKDAYS, WorkCalendar
 from .network import (
     MAX_LAG,
@@ -18,9 +20,11 @@ from .network import (
     RELATION_TYPES,
     Crew,
     Network,
+    Progress,
     build_network,
 )
 from .problems import NetworkInvalid, Problem, pointer
+from .progress import MODES, RETAINED_LOGIC
 
 FORMAT = "sitepace.network/1"
 LAG_UNITS = ("workdays", "calendar_days")
@@ -34,7 +38,7 @@ _TOP = {
     "activities",
     "relations",
 }
-_PROJECT = {"name", "start", "calendar", "data_date", "deadline"}
+_PROJECT = {"name", "start", "calendar", "data_date", "deadline", "out_of_sequence"}
 _CALENDAR = {"key", "name", "workdays", "holidays", "extra_workdays"}
 _CREW = {"key", "name", "capacity", "calendar", "unavailable"}
 _ACTIVITY = {
@@ -56,7 +60,6 @@ _ACTIVITY = {
     "quantity",
     "unit",
 }
-_PROGRESS = ("actual_start", "actual_finish", "remaining", "percent_complete")
 #: Longest key of a calendar, crew or activity (the stored rows hold 64).
 MAX_KEY = 64
 _RELATION = {"pred", "succ", "type", "lag", "lag_unit"}
@@ -223,6 +226,14 @@ def parse_network(document: Any) -> Network:
             "data_date_before_start",
             "project data date is before the project start",
         )
+    oos_mode = project.get("out_of_sequence") or RETAINED_LOGIC
+    if oos_mode not in MODES:
+        r.problem(
+            "/project/out_of_sequence",
+            "unknown_mode",
+            f"project out_of_sequence must be {' or '.join(MODES)}, got {oos_mode!r}",
+        )
+        oos_mode = RETAINED_LOGIC
 
     calendars: list[WorkCalendar] = []
     cal_index: dict[str, int] = {}
@@ -349,6 +360,10 @@ def parse_network(document: Any) -> Network:
     dem_u: list[int] = []
     warnings: list[Problem] = []
     act_index: dict[str, int] = {}
+    actual_start: list[int] = []
+    actual_finish: list[int] = []
+    remaining: list[int] = []
+    percent: list[int] = []
 
     def day_offset(day: dt.date | None) -> int:
         return NO_DATE if day is None or start is None else (day - start).days
@@ -393,25 +408,7 @@ def parse_network(document: Any) -> Network:
             entry.get("not_before"), ptr + "/not_before", f"{label}: not_before"
         )
         dl = r.date(entry.get("deadline"), ptr + "/deadline", f"{label}: deadline")
-        for name_ in ("actual_start", "actual_finish"):
-            r.date(entry.get(name_), f"{ptr}/{name_}", f"{label}: {name_}")
-        if entry.get("remaining") is not None:
-            r.integer(
-                entry["remaining"],
-                ptr + "/remaining",
-                f"{label}: remaining",
-                0,
-                10_000,
-                unit=" working days",
-            )
-        if entry.get("percent_complete") is not None:
-            r.integer(
-                entry["percent_complete"],
-                ptr + "/percent_complete",
-                f"{label}: percent_complete",
-                0,
-                100,
-            )
+        a_start, a_finish, left, pct = _progress(r, entry, ptr, label, start, data_date)
         if entry.get("milestone") is not None and not isinstance(
             entry.get("milestone"), bool
         ):
@@ -426,17 +423,6 @@ def parse_network(document: Any) -> Network:
                 "milestone_duration",
                 f"{label}: a milestone has duration 0",
             )
-        for name_ in _PROGRESS:
-            if entry.get(name_) is not None:
-                warnings.append(
-                    Problem(
-                        f"{ptr}/{name_}",
-                        "progress_not_applied",
-                        f"{label}: {name_} is not applied by this critical path; "
-                        "the activity is scheduled as not yet started",
-                    )
-                )
-                break
         demands = entry.get("demands") or {}
         if not isinstance(demands, Mapping):
             r.problem(
@@ -465,6 +451,10 @@ def parse_network(document: Any) -> Network:
         act_cals.append(acal if acal is not None else 0)
         not_before.append(day_offset(nb))
         act_deadline.append(day_offset(dl))
+        actual_start.append(day_offset(a_start))
+        actual_finish.append(day_offset(a_finish))
+        remaining.append(-1 if left is None else left)
+        percent.append(-1 if pct is None else pct)
         grouping: dict[str, object] = {}
         for name_, longest in (("zone", 100), ("trade", 100), ("unit", 32)):
             word = r.text(
@@ -567,7 +557,123 @@ def parse_network(document: Any) -> Network:
         extras=extras,
         warnings=warnings,
         problems=r.problems,
+        progress=(
+            Progress(
+                mode=oos_mode,
+                actual_start=np.array(actual_start, dtype=np.int64),
+                actual_finish=np.array(actual_finish, dtype=np.int64),
+                remaining=np.array(remaining, dtype=np.int64),
+                percent=np.array(percent, dtype=np.int64),
+            )
+            if any(d != NO_DATE for d in actual_start)
+            else None
+        ),
     )
+
+
+def _progress(
+    r: _Reader,
+    entry: Mapping[str, Any],
+    ptr: str,
+    label: str,
+    start: dt.date | None,
+    data_date: dt.date | None,
+) -> tuple[dt.date | None, dt.date | None, int | None, int | None]:
+    """An activity's progress fields, checked together; see :mod:`.progress`.
+
+    Progress is measured up to the data date: it needs one, and no actual date
+    lies after it or before the project start. A finish needs a start on or
+    before it; remaining work and percent complete need a start, and a
+    finished activity has neither work remaining nor less than 100 %.
+    """
+    a_start = r.date(
+        entry.get("actual_start"), f"{ptr}/actual_start", f"{label}: actual_start"
+    )
+    a_finish = r.date(
+        entry.get("actual_finish"), f"{ptr}/actual_finish", f"{label}: actual_finish"
+    )
+    left = None
+    if entry.get("remaining") is not None:
+        left = r.integer(
+            entry["remaining"],
+            ptr + "/remaining",
+            f"{label}: remaining",
+            0,
+            10_000,
+            unit=" working days",
+        )
+    pct = None
+    if entry.get("percent_complete") is not None:
+        pct = r.integer(
+            entry["percent_complete"],
+            ptr + "/percent_complete",
+            f"{label}: percent_complete",
+            0,
+            100,
+        )
+    given = [
+        name
+        for name, value in (
+            ("actual_start", a_start),
+            ("actual_finish", a_finish),
+            ("remaining", left),
+            ("percent_complete", pct),
+        )
+        if value is not None
+    ]
+    if not given:
+        return None, None, None, None
+    bad = len(r.problems)
+    if data_date is None:
+        r.problem(
+            f"{ptr}/{given[0]}",
+            "progress_without_data_date",
+            f"{label}: progress is measured up to the data date; set the project "
+            "data_date first",
+        )
+    if a_start is None:
+        for name in given:
+            r.problem(
+                f"{ptr}/{name}",
+                "progress_without_start",
+                f"{label}: {name} needs an actual_start",
+            )
+    for name, day in (("actual_start", a_start), ("actual_finish", a_finish)):
+        if day is None:
+            continue
+        if data_date is not None and day > data_date:
+            r.problem(
+                f"{ptr}/{name}",
+                "actual_after_data_date",
+                f"{label}: {name} {day} is after the data date {data_date}",
+            )
+        if start is not None and day < start:
+            r.problem(
+                f"{ptr}/{name}",
+                "actual_before_start",
+                f"{label}: {name} {day} is before the project start {start}",
+            )
+    if a_start and a_finish and a_finish < a_start:
+        r.problem(
+            f"{ptr}/actual_finish",
+            "finish_before_start",
+            f"{label}: actual_finish {a_finish} is before actual_start {a_start}",
+        )
+    if a_finish is not None and left:
+        r.problem(
+            f"{ptr}/remaining",
+            "remaining_after_finish",
+            f"{label}: a finished activity has no remaining work (got {left})",
+        )
+    if a_finish is not None and pct is not None and pct < 100:
+        r.problem(
+            f"{ptr}/percent_complete",
+            "percent_after_finish",
+            f"{label}: a finished activity is 100 % complete (got {pct})",
+        )
+    if len(r.problems) > bad:
+        return None, None, None, None
+    return a_start, a_finish, left, pct
 
 
 def _dates(r: _Reader, value: Any, ptr: str, field: str, label: str) -> set[dt.date]:

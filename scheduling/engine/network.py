@@ -61,6 +61,29 @@ class Topology:
 
 
 @dataclass(frozen=True, slots=True)
+class Progress:
+    """What happened on site, one column per field, in activity order.
+
+    Dates are day offsets from the project start (``NO_DATE`` where absent);
+    ``remaining`` (working days) and ``percent`` are ``-1`` where absent.
+    ``mode`` is how work started out of sequence is scheduled:
+    ``"retained_logic"`` (its remaining work still waits for its
+    predecessors) or ``"progress_override"`` (started work ignores them).
+    See :mod:`.progress`.
+    """
+
+    mode: str
+    actual_start: np.ndarray
+    actual_finish: np.ndarray
+    remaining: np.ndarray
+    percent: np.ndarray
+
+    @property
+    def any(self) -> bool:
+        return bool(np.any(self.actual_start != NO_DATE))
+
+
+@dataclass(frozen=True, slots=True)
 class Network:
     """A checked network, ready for the critical path.
 
@@ -93,6 +116,12 @@ class Network:
     topology: Topology
     extras: tuple[dict[str, object], ...] = field(default=())
     warnings: tuple[Problem, ...] = field(default=())
+    #: Progress recorded on site, as given (``None``: nothing recorded).
+    progress: Progress | None = None
+    #: Starts fixed by progress (day offsets, ``NO_DATE`` where free): such an
+    #: activity starts exactly there, data date or not. Set only on the
+    #: network that :mod:`.progress` derives for the passes.
+    fixed_start: np.ndarray | None = None
 
     @property
     def size(self) -> int:
@@ -132,6 +161,8 @@ def build_network(
     warnings: Sequence[Problem] = (),
     problems: Sequence[Problem] = (),
     rel_pointers: Sequence[str] | None = None,
+    progress: Progress | None = None,
+    fixed_start: object | None = None,
 ) -> Network:
     """Check columns as a whole and return a :class:`Network`.
 
@@ -314,6 +345,8 @@ def build_network(
         topology=topology,
         extras=tuple(extras),
         warnings=tuple(warnings),
+        progress=progress,
+        fixed_start=None if fixed_start is None else _column(fixed_start, np.int64),
     )
 
 

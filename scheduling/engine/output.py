@@ -11,6 +11,7 @@ import numpy as np
 from .cautions import SITE_CAUTION
 from .cpm import CpmResult
 from .network import Network
+from .progress import FINISHED, NOT_STARTED, RETAINED_LOGIC, actual_date
 
 FORMAT = "sitepace.schedule/1"
 
@@ -28,6 +29,7 @@ def schedule_document(network: Network, result: CpmResult) -> dict[str, Any]:
     for e in np.flatnonzero(result.driving).tolist():
         drivers[int(net.rel_succ[e])].append(net.keys[int(net.rel_pred[e])])
     cal_keys = [c.key for c in net.calendars]
+    progress = _progress_fields(net, result)
     tf, ff = result.total_float.tolist(), result.free_float.tolist()
     crit = result.critical.tolist()
     dur = net.duration.tolist()
@@ -46,6 +48,7 @@ def schedule_document(network: Network, result: CpmResult) -> dict[str, Any]:
             "free_float": ff[i],
             "critical": crit[i],
             "drivers": drivers[i],
+            **progress[i],
             **(net.extras[i] if net.extras else {}),
         }
         for i in range(net.size)
@@ -59,6 +62,9 @@ def schedule_document(network: Network, result: CpmResult) -> dict[str, Any]:
             "finish": result.finish.isoformat(),
             "deadline": net.deadline.isoformat() if net.deadline else None,
             "data_date": net.data_date.isoformat() if net.data_date else None,
+            "out_of_sequence": (
+                net.progress.mode if net.progress is not None else RETAINED_LOGIC
+            ),
             "calendar": cal_keys[net.calendar],
             "working_days": result.length,
         },
@@ -71,9 +77,34 @@ def schedule_document(network: Network, result: CpmResult) -> dict[str, Any]:
             "no_predecessor": list(result.no_predecessor),
             "no_successor": list(result.no_successor),
         },
-        "warnings": [w.as_dict() for w in net.warnings],
+        "warnings": [
+            w.as_dict()
+            for w in (result.progress.work if result.progress else net).warnings
+        ],
         "caution": SITE_CAUTION,
     }
+
+
+def _progress_fields(net: Network, result: CpmResult) -> list[dict[str, Any]]:
+    """Per activity: its progress state, actual dates and remaining work."""
+    rw = result.progress
+    if rw is None or net.progress is None:
+        return [{"status": NOT_STARTED}] * net.size
+    a_s = net.progress.actual_start.tolist()
+    a_f = net.progress.actual_finish.tolist()
+    out: list[dict[str, Any]] = []
+    for i in range(net.size):
+        entry: dict[str, Any] = {"status": rw.status[i]}
+        if rw.status[i] != NOT_STARTED:
+            day = actual_date(net, a_s[i])
+            entry["actual_start"] = day.isoformat() if day else None
+        if rw.status[i] == FINISHED:
+            day = actual_date(net, a_f[i])
+            entry["actual_finish"] = day.isoformat() if day else None
+        if rw.remaining[i] is not None:
+            entry["remaining"] = rw.remaining[i]
+        out.append(entry)
+    return out
 
 
 @dataclass(frozen=True, slots=True)
@@ -89,9 +120,14 @@ def crew_daily_demand(network: Network, result: CpmResult) -> np.ndarray:
     """Demand per crew and table day at early dates: array ``[crew, day]``.
 
     An activity loads its crews on its own working days from its early start
-    to its early finish; milestones load nothing.
+    to its early finish; milestones load nothing. With progress only the
+    remaining work loads crews, from its start on the data date or later.
     """
     net = network
+    if result.progress is not None:
+        # Remaining work only: the work network holds it under the same
+        # activity numbers, and no crew for finished work or work done.
+        net = result.progress.work
     tables = result.tables
     load = np.zeros((len(net.crews), tables.n_days), dtype=np.int64)
     if not len(net.dem_activity):

@@ -158,13 +158,6 @@ def test_a_valid_document_passes_and_keeps_its_order():
     assert net.duration.tolist() == [2, 0]
 
 
-def test_progress_fields_give_a_warning_not_an_error():
-    net = parse_network(
-        doc([{"key": "A", "duration": 2, "actual_start": "2027-03-01"}])
-    )
-    assert [w.code for w in net.warnings] == ["progress_not_applied"]
-
-
 def test_a_schedule_past_the_year_9999_is_refused_not_crashed():
     from scheduling.engine import critical_path
 
