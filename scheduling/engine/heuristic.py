@@ -31,7 +31,7 @@ from __future__ import annotations
 import datetime as dt
 import heapq
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -102,6 +102,10 @@ class Timeline:
     order: tuple[int, ...]
     axis: tuple[int | None, ...]
     axis_blocks: tuple[tuple[tuple[int, int], ...], ...]
+    #: Activities that may not move, with their start position: work done or
+    #: under way (see :mod:`.progress`). Set by the levelling after the
+    #: critical path has placed them.
+    pinned: dict[int, int] = field(default_factory=dict)
 
     @property
     def size(self) -> int:
@@ -153,6 +157,8 @@ class Timeline:
 
     def latest_for_finish(self, i: int, finish_day: int) -> int:
         """The greatest start position of ``i`` that finishes by ``finish_day``."""
+        if i in self.pinned:
+            return self.pinned[i]
         return self.Wl[self.cal[i]][finish_day + 1 + self.pad] - max(self.dur[i], 1)
 
     def latest_for_end(self, i: int, end: int) -> int:
@@ -209,6 +215,9 @@ def build_timeline(network: Network, horizon: int) -> Timeline:
         lb[:] = max((net.data_date - net.start).days, 0)
     nb = net.not_before
     lb = np.where(nb != NO_DATE, np.maximum(lb, nb), lb)
+    if net.fixed_start is not None:
+        # Work done or under way starts where it did, before the data date.
+        lb = np.where(net.fixed_start != NO_DATE, net.fixed_start, lb)
     rels = tuple(
         Relation(r, int(p), int(s), int(t), int(w), int(c))
         for r, (p, s, t, w, c) in enumerate(
@@ -395,11 +404,15 @@ def _earliest(
         if hit is None:
             return p, None
         blocker = hit[1]
+        if i in tl.pinned:
+            return None, blocker  # work under way cannot wait for its crew
         p = max(p + 1, hit[0])
 
 
 def _lower(tl: Timeline, i: int, pos: Sequence[int]) -> int:
     """The least start position of ``i`` given its predecessors' positions."""
+    if i in tl.pinned:
+        return tl.pinned[i]
     c = tl.cal[i]
     p = tl.pos(c, tl.lb_day[i])
     for r in tl.preds[i]:
@@ -424,7 +437,9 @@ def serial_schedule(
     """
     n = tl.size
     waiting = [len(tl.preds[i]) for i in range(n)]
-    heap = [(priority[i], i) for i in range(n) if waiting[i] == 0]
+    # Work done or under way goes first: it cannot move, the rest fits round it.
+    rank = [-np.inf if i in tl.pinned else priority[i] for i in range(n)]
+    heap = [(rank[i], i) for i in range(n) if waiting[i] == 0]
     heapq.heapify(heap)
     pos = [0] * n
     prof = _Profile(tl, limit, extra)
@@ -441,7 +456,7 @@ def serial_schedule(
         for r in tl.succs[i]:
             waiting[r.succ] -= 1
             if waiting[r.succ] == 0:
-                heapq.heappush(heap, (priority[r.succ], r.succ))
+                heapq.heappush(heap, (rank[r.succ], r.succ))
     return Schedule(tuple(pos), finish)
 
 

@@ -3,7 +3,7 @@
 Opt-in (marked ``bench``; ``tests/conftest.py`` skips it without ``--bench``):
 run with ``pytest tests/bench/test_bench_levelling.py --bench -s -p no:django``;
 the figures are printed.
-All solves use 2 workers and a 10 s limit per instance.
+All solves use 2 workers and a 10 s limit per instance unless said otherwise.
 
 * PSPLIB J30, all 480 instances: how many reach the proven optimum of
   ``j30opt.sm`` and how many are proven optimal; mean and max time (target
@@ -13,7 +13,9 @@ All solves use 2 workers and a 10 s limit per instance.
 * J60 and J120, the first instance of each parameter group (48 and 60): mean
   deviation from the best known makespans (``j60hrs.sm``, ``j120hrs.sm``) and
   from the critical-path bound, beside the serial heuristic alone (targets:
-  J60 ≥ 45/48 at best known; J120 ≤ 2.0 % above best known).
+  J60 ≥ 45/48 at best known; J120 ≤ 2.0 % above best known). The same J120
+  set at 60 s per instance (target ≤ 1.0 %) takes about an hour and runs only
+  with ``SITEPACE_BENCH_LONG=1``: ``-k j120_60s``.
 * A generated project of 2,000 activities and 15 crews on two calendars:
   feasible within 60 s; gap and peak memory.
 """
@@ -21,6 +23,7 @@ All solves use 2 workers and a 10 s limit per instance.
 from __future__ import annotations
 
 import datetime as dt
+import os
 import statistics
 import time
 import tracemalloc
@@ -79,17 +82,18 @@ def test_j30_all_480_reach_the_published_optimum():
     assert statistics.mean(times) <= 0.3
 
 
-def _first_of_each_group(size, groups, reference):
+def _first_of_each_group(size, groups, reference, limit=LIMIT):
     best = load_solutions(reference)  # PSPLIB best known upper bounds
     rows = []
     for group in range(1, groups + 1):
         inst = load_instance(size, group, 1)
         net = inst.network
         t0 = time.perf_counter()
-        result = level(net, time_limit=LIMIT, workers=WORKERS)
+        result = level(net, time_limit=limit, workers=WORKERS)
         elapsed = time.perf_counter() - t0
         rows.append(
             {
+                "group": group,
                 "got": makespan(net, result.finish),
                 "heuristic": _heuristic_makespan(result, net),
                 "best": best[(group, 1)],
@@ -97,6 +101,12 @@ def _first_of_each_group(size, groups, reference):
                 "proven": result.status == "optimal",
                 "time": elapsed,
             }
+        )
+        r = rows[-1]
+        print(
+            f"  {size}-{group}-1: got {r['got']} best {r['best']} heuristic "
+            f"{r['heuristic']} cpm {r['cpm']} {result.status} {elapsed:.2f} s",
+            flush=True,
         )
     return rows
 
@@ -130,6 +140,18 @@ def test_j60_first_of_each_group_against_best_known():
 def test_j120_first_of_each_group_against_best_known():
     _, deviation = _summary("J120", _first_of_each_group(120, 60, "j120hrs.sm"))
     assert deviation <= 2.0
+
+
+@needs_data
+@pytest.mark.skipif(
+    os.environ.get("SITEPACE_BENCH_LONG") != "1",
+    reason="about an hour: set SITEPACE_BENCH_LONG=1 (and select -k j120_60s)",
+)
+def test_j120_60s_first_of_each_group_against_best_known():
+    _, deviation = _summary(
+        "J120 at 60 s", _first_of_each_group(120, 60, "j120hrs.sm", limit=60.0)
+    )
+    assert deviation <= 1.0
 
 
 # --- a generated construction project --------------------------------------
