@@ -75,6 +75,14 @@ class LevellingInfeasible(NetworkInvalid):
     """No schedule meets the crews and the limits; the problems say why."""
 
 
+class LevellingStopped(RuntimeError):
+    """The caller's ``should_stop`` turned true: nothing is returned."""
+
+
+#: Seconds between two looks at ``should_stop`` during a solve.
+STOP_POLL = 0.2
+
+
 class ScheduleRejected(RuntimeError):
     """The independent checker refused a schedule: a bug in the levelling."""
 
@@ -1072,10 +1080,14 @@ def solve(
     workers: int,
     seed: int,
     on_progress: ProgressFn | None = None,
+    should_stop: Callable[[], bool] | None = None,
 ) -> _Solved:
     """One CP-SAT solve of the current objective; maps nothing, hides nothing.
 
-    Raises :class:`RuntimeError` on MODEL_INVALID (a bug in the builder).
+    ``should_stop`` is polled every :data:`STOP_POLL` seconds while the
+    solver works; when it turns true the search stops and
+    :class:`LevellingStopped` is raised. Raises :class:`RuntimeError` on
+    MODEL_INVALID (a bug in the builder).
     """
     if hint is not None:
         _hint(m, plan, hint)
@@ -1084,7 +1096,31 @@ def solve(
     callback = (
         _Progress(m, plan, on_progress, time.perf_counter()) if on_progress else None
     )
-    status = solver.solve(m.model, callback)
+    done = threading.Event()
+    stopped = threading.Event()
+
+    def watch() -> None:
+        assert should_stop is not None
+        while not done.wait(STOP_POLL):
+            if should_stop():
+                stopped.set()
+                solver.stop_search()
+                return
+
+    watcher = None
+    if should_stop is not None:
+        if should_stop():
+            raise LevellingStopped("stopped before the solve")
+        watcher = threading.Thread(target=watch, name="levelling-stop", daemon=True)
+        watcher.start()
+    try:
+        status = solver.solve(m.model, callback)
+    finally:
+        done.set()
+        if watcher is not None:
+            watcher.join()
+    if stopped.is_set():
+        raise LevellingStopped(f"stopped during the {phase} solve")
     if status == cp.MODEL_INVALID:
         raise RuntimeError(f"levelling model invalid: {m.model.validate()}")
     found = status in (cp.OPTIMAL, cp.FEASIBLE)
@@ -1578,6 +1614,7 @@ def level(
     workers: int = 2,
     seed: int = 0,
     on_progress: ProgressFn | None = None,
+    should_stop: Callable[[], bool] | None = None,
 ) -> LevelResult:
     """Level ``network`` for ``goal``; see the module docstring.
 
@@ -1588,7 +1625,9 @@ def level(
     seconds for all solves together; ``workers`` and ``seed`` go to CP-SAT.
     ``on_progress(finish, bound, elapsed)`` is called for each better solution
     of the goal solve (``bound`` a date for ``"shortest"``, else ``None``;
-    ``elapsed`` seconds).
+    ``elapsed`` seconds). ``should_stop()``, when given, is asked about five
+    times a second while anything is computed; once it answers true the run
+    ends with :class:`LevellingStopped` (a cancelled run, say).
 
     For ``"shortest"`` the goal's time is spent in steps: a short CP-SAT solve
     (:data:`PROBE_SHARE`, at most :data:`PROBE_MAX` seconds), which proves
@@ -1639,6 +1678,7 @@ def level(
         workers=workers,
         seed=seed,
         on_progress=on_progress,
+        should_stop=should_stop,
     )
     stats.append(first.stats)
     if _worth_improving(plan, first):
@@ -1663,6 +1703,7 @@ def level(
                         workers=workers - 1,
                         seed=seed,
                         on_progress=on_progress,
+                        should_stop=should_stop,
                     )
                 )
             except BaseException as exc:  # re-raised in the calling thread
@@ -1682,7 +1723,8 @@ def level(
             seed,
             target=known,
             stop=lambda: (
-                bool(side)
+                (should_stop is not None and should_stop())
+                or bool(side)
                 and not isinstance(side[0], BaseException)
                 and side[0].status == cp.OPTIMAL
             ),
@@ -1732,6 +1774,7 @@ def level(
                 workers=workers,
                 seed=seed,
                 on_progress=on_progress,
+                should_stop=should_stop,
             )
             stats.append(again.stats)
             first = _better(first, again)
@@ -1766,6 +1809,7 @@ def level(
                 time_limit=budget(len(phases) - 1),
                 workers=workers,
                 seed=seed,
+                should_stop=should_stop,
             )
             stats.append(got.stats)
             if got.pos is not None and got.objective is not None:
@@ -1782,6 +1826,7 @@ def level(
                 time_limit=budget(1),
                 workers=workers,
                 seed=seed,
+                should_stop=should_stop,
             )
             stats.append(got.stats)
             if got.pos is not None:
@@ -2151,6 +2196,7 @@ __all__ = [
     "LevelStep",
     "LevelledActivity",
     "LevellingInfeasible",
+    "LevellingStopped",
     "Move",
     "ScheduleRejected",
     "SolveStats",

@@ -393,7 +393,7 @@ def test_unknown_goal_is_refused():
 
 
 def _status_only(status):
-    def fake(m, plan, *, phase, hint, time_limit, workers, seed, on_progress=None):
+    def fake(m, plan, *, phase, hint, time_limit, workers, seed, **_):
         stats = lv.SolveStats(phase, "UNKNOWN", 0.0, 0, 0, None, None)
         return lv._Solved(status, None, None, None, stats)
 
