@@ -1,4 +1,8 @@
-"""The Celery app, configured from the Django settings (``CELERY_*``)."""
+"""The Celery app, configured from the Django settings (``CELERY_*``).
+
+Start a worker with ``celery -A api.celery worker`` and the timer with
+``celery -A api.celery beat``; both read the same settings as the web server.
+"""
 
 import os
 

@@ -108,6 +108,15 @@ DATABASES = {
         conn_max_age=int(os.environ.get("DATABASE_CONN_MAX_AGE", "60")),
     )
 }
+if DATABASES["default"]["ENGINE"] == "django.db.backends.sqlite3":
+    # The embedded default has a web server and a worker process on one file:
+    # readers do not wait for the writer (WAL), writers take the lock when
+    # their transaction begins and wait for it rather than fail at once.
+    DATABASES["default"].setdefault("OPTIONS", {}).update(
+        init_command="PRAGMA journal_mode=WAL;",
+        transaction_mode="IMMEDIATE",
+        timeout=30,
+    )
 DEFAULT_AUTO_FIELD = "django.db.models.BigAutoField"
 
 AUTH_PASSWORD_VALIDATORS = [
@@ -167,19 +176,101 @@ SPECTACULAR_SETTINGS = {
     ],
 }
 
+
 # Celery: Redis in production; the embedded default uses kombu's file-system
-# transport, which needs no server.
+# transport, which needs no server (a real worker process all the same).
+def _seconds(name: str, default: float) -> float:
+    try:
+        return float(os.environ.get(name, default))
+    except ValueError:
+        raise ImproperlyConfigured(f"{name} must be a number of seconds") from None
+
+
 _broker_dir = VAR_DIR / "celery"
 CELERY_BROKER_URL = os.environ.get("CELERY_BROKER_URL", "filesystem://")
+# The time limits nest: the longest solve a run may ask for < the task's soft
+# limit < its hard limit < the broker's visibility timeout, so a message is
+# never handed to a second worker while the first may still be working on it.
+SITEPACE_RUN_MAX_SECONDS = _seconds("SITEPACE_RUN_MAX_SECONDS", 600)
+CELERY_TASK_SOFT_TIME_LIMIT = _seconds(
+    "SITEPACE_TASK_SOFT_LIMIT", SITEPACE_RUN_MAX_SECONDS + 60
+)
+CELERY_TASK_TIME_LIMIT = _seconds(
+    "SITEPACE_TASK_HARD_LIMIT", CELERY_TASK_SOFT_TIME_LIMIT + 30
+)
+SITEPACE_VISIBILITY_TIMEOUT = _seconds(
+    "SITEPACE_BROKER_VISIBILITY_TIMEOUT", CELERY_TASK_TIME_LIMIT + 180
+)
+if not (
+    0
+    < SITEPACE_RUN_MAX_SECONDS
+    < CELERY_TASK_SOFT_TIME_LIMIT
+    < CELERY_TASK_TIME_LIMIT
+    < SITEPACE_VISIBILITY_TIMEOUT
+):
+    raise ImproperlyConfigured(
+        "time limits must nest: SITEPACE_RUN_MAX_SECONDS < SITEPACE_TASK_SOFT_LIMIT "
+        "< SITEPACE_TASK_HARD_LIMIT < SITEPACE_BROKER_VISIBILITY_TIMEOUT"
+    )
+#: A working run whose heartbeat is older than this counts as abandoned (its
+#: worker died): a later delivery may take it over. The heartbeat is written
+#: every fifth of it.
+SITEPACE_RUN_STALE_SECONDS = _seconds("SITEPACE_RUN_STALE_SECONDS", 30)
+#: How often a run may be taken up again after its worker was lost.
+SITEPACE_RUN_MAX_ATTEMPTS = int(_seconds("SITEPACE_RUN_MAX_ATTEMPTS", 3))
+#: Seconds a nightly re-levelling gives the solver.
+SITEPACE_NIGHTLY_TIME_LIMIT = _seconds("SITEPACE_NIGHTLY_TIME_LIMIT", 60)
+#: Solver threads per run (CP-SAT ``num_workers``).
+SITEPACE_SOLVER_WORKERS = int(_seconds("SITEPACE_SOLVER_WORKERS", 2))
+
 if CELERY_BROKER_URL.startswith("filesystem://"):
     for sub in ("queue", "processed"):
         (_broker_dir / sub).mkdir(parents=True, exist_ok=True)
-    CELERY_BROKER_TRANSPORT_OPTIONS = {
+    CELERY_BROKER_TRANSPORT_OPTIONS: dict = {
         "data_folder_in": str(_broker_dir / "queue"),
         "data_folder_out": str(_broker_dir / "queue"),
         "processed_folder": str(_broker_dir / "processed"),
         "store_processed": False,
     }
+else:
+    CELERY_BROKER_TRANSPORT_OPTIONS = {
+        "visibility_timeout": SITEPACE_VISIBILITY_TIMEOUT,
+        # Sweep for messages of lost workers at least every tenth of the
+        # visibility timeout (kombu's default sweep is 100 s apart).
+        "unacked_restore_interval": max(1, int(SITEPACE_VISIBILITY_TIMEOUT / 10)),
+        "unacked_restore_throttle": 1,
+        "socket_timeout": 10,
+        "socket_connect_timeout": 5,
+    }
+    _prefix = os.environ.get("SITEPACE_BROKER_PREFIX")
+    if _prefix:
+        CELERY_BROKER_TRANSPORT_OPTIONS["global_keyprefix"] = _prefix
 CELERY_TASK_SERIALIZER = "json"
 CELERY_ACCEPT_CONTENT = ["json"]
 CELERY_TIMEZONE = "UTC"
+CELERY_ENABLE_UTC = True
+# Runs keep their own state and progress in the database: no result backend.
+CELERY_TASK_IGNORE_RESULT = True
+CELERY_TASK_ACKS_LATE = True
+CELERY_TASK_REJECT_ON_WORKER_LOST = True
+CELERY_WORKER_PREFETCH_MULTIPLIER = 1
+CELERY_BROKER_CONNECTION_TIMEOUT = 5
+CELERY_BROKER_CONNECTION_RETRY_ON_STARTUP = True
+CELERY_WORKER_HIJACK_ROOT_LOGGER = False
+CELERY_BEAT_SCHEDULE_FILENAME = str(VAR_DIR / "beat-schedule")
+CELERY_BEAT_SCHEDULE = {
+    # Every quarter hour: queue the nightly re-levelling of each project whose
+    # local hour is its nightly hour (projects keep their own time zones).
+    "nightly-relevel": {
+        "task": "scheduling.tasks.nightly_tick",
+        "schedule": 15 * 60,
+        "options": {"expires": 14 * 60},
+    },
+    # Every few minutes: take up runs whose worker was lost or whose message
+    # went missing (the file-system broker cannot redeliver by itself).
+    "recover-runs": {
+        "task": "scheduling.tasks.runs_recover",
+        "schedule": max(60.0, SITEPACE_RUN_STALE_SECONDS * 2),
+        "options": {"expires": 60},
+    },
+}

@@ -12,6 +12,7 @@ from .models import (
     ComputedSchedule,
     Crew,
     Membership,
+    ProgressEntry,
     Project,
     Relation,
 )
@@ -63,3 +64,33 @@ class MembershipAdmin(admin.ModelAdmin):
 @admin.register(ComputedSchedule)
 class ComputedScheduleAdmin(admin.ModelAdmin):
     list_display = ["project", "revision", "computed_at"]
+
+
+@admin.register(ProgressEntry)
+class ProgressEntryAdmin(admin.ModelAdmin):
+    """Progress entries are append-only: staff may read them, never change or
+    delete one (a correction is a new entry, made through the API)."""
+
+    list_display = [
+        "id",
+        "project",
+        "activity_key",
+        "kind",
+        "actual_start",
+        "actual_finish",
+        "percent_complete",
+        "remaining",
+        "recorded_by",
+        "recorded_at",
+    ]
+    list_filter = ["project", "kind", "delay_reason"]
+    search_fields = ["activity_key", "note"]
+
+    def has_add_permission(self, request):
+        return False
+
+    def has_change_permission(self, request, obj=None):
+        return False
+
+    def has_delete_permission(self, request, obj=None):
+        return False

@@ -14,7 +14,7 @@ from typing import Any
 
 from scheduling.engine.document import FORMAT
 
-from .models import Activity, Calendar, Crew, Project, Relation
+from .models import Activity, Calendar, Crew, OutOfSequence, Project, Relation
 
 
 def _num(value: Decimal | None) -> float | None:
@@ -25,22 +25,38 @@ def _date(value: Any) -> str | None:
     return None if value is None else value.isoformat()
 
 
-def network_document(project: Project) -> dict[str, Any]:
-    """The project's network as a document; entries in the order they were made."""
+def network_document(
+    project: Project, *, states: dict[int, Any] | None = None
+) -> dict[str, Any]:
+    """The project's network as a document; entries in the order they were made.
+
+    Each activity carries the progress its entries fold to (``actual_start``,
+    ``actual_finish``, ``percent_complete``, ``remaining``: only those set), and
+    the project its ``out_of_sequence`` treatment when it is not the default
+    ``retained_logic``. ``states`` (activity id → progress state) replaces the
+    recorded progress, for checking an entry before it is stored.
+    """
+    if states is None:
+        from .progress_entries import progress_states_get
+
+        states = progress_states_get(project=project)
     calendars = list(project.calendars.order_by("id"))
     cal_key = {c.id: c.key for c in calendars}
     default_cal = cal_key.get(project.calendar_id)
     activities = list(project.activities.order_by("id"))
     act_key = {a.id: a.key for a in activities}
+    head: dict[str, Any] = {
+        "name": project.name,
+        "start": _date(project.start),
+        "calendar": default_cal,
+        "data_date": _date(project.data_date),
+        "deadline": _date(project.deadline),
+    }
+    if project.out_of_sequence != OutOfSequence.RETAINED_LOGIC:
+        head["out_of_sequence"] = project.out_of_sequence
     return {
         "format": FORMAT,
-        "project": {
-            "name": project.name,
-            "start": _date(project.start),
-            "calendar": default_cal,
-            "data_date": _date(project.data_date),
-            "deadline": _date(project.deadline),
-        },
+        "project": head,
         "calendars": [
             {
                 "key": c.key,
@@ -75,6 +91,7 @@ def network_document(project: Project) -> dict[str, Any]:
                 "planned_value": _num(a.planned_value),
                 "quantity": _num(a.quantity),
                 "unit": a.unit or None,
+                **(states[a.id].document_fields() if a.id in states else {}),
             }
             for a in activities
         ],
@@ -140,7 +157,8 @@ def network_rows_store(project: Project, document: dict[str, Any]) -> None:
     """Write a document that ``parse_network`` accepted into the project's rows.
 
     Call inside a transaction. Optional fields absent from the document are
-    stored empty.
+    stored empty. Progress fields are not stored here: progress comes from
+    entries (``scheduling/progress_entries.py``).
     """
     from datetime import date
 
@@ -239,5 +257,18 @@ def network_rows_store(project: Project, document: dict[str, Any]) -> None:
     project.calendar = default
     project.data_date = day(p.get("data_date"))
     project.deadline = day(p.get("deadline"))
-    project.save()
+    # Absent means the default, as network_document leaves the default out.
+    project.out_of_sequence = p.get("out_of_sequence") or OutOfSequence.RETAINED_LOGIC
+    # Not progress_revision: progress entries move it on their own.
+    project.save(
+        update_fields=[
+            "name",
+            "start",
+            "calendar",
+            "data_date",
+            "deadline",
+            "out_of_sequence",
+            "updated_at",
+        ]
+    )
     Calendar.objects.filter(pk__in=gone_cals).delete()

@@ -48,3 +48,15 @@ class PreconditionRequired(ServiceError):
 
     status = 428
     code = "if_match_required"
+
+
+class QueueUnavailable(ServiceError):
+    """The work queue (the broker) cannot be reached; nothing was queued."""
+
+    status = 503
+    code = "queue_unavailable"
+
+    def __init__(self, message: str, retry_after: int = 30):
+        super().__init__(message)
+        self.retry_after = retry_after
+        self.run_id: int | None = None

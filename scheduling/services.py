@@ -35,7 +35,9 @@ from .models import (
     Project,
     Relation,
     Role,
+    ScheduleVersion,
 )
+from .progress_entries import progress_overlay
 
 MODELS = {"calendars": Calendar, "crews": Crew, "activities": Activity}
 SINGULAR = {"calendars": "calendar", "crews": "crew", "activities": "activity"}
@@ -100,6 +102,7 @@ def project_create(*, user: Any, name: str, start: Any, **fields: Any) -> Projec
             "calendar": "weekdays",
             "data_date": fields.pop("data_date", None),
             "deadline": fields.pop("deadline", None),
+            "out_of_sequence": fields.pop("out_of_sequence", None),
         },
         "calendars": [
             {"key": "weekdays", "name": "Monday to Friday", "workdays": WEEKDAYS}
@@ -137,6 +140,9 @@ def network_replace(
 ) -> Project:
     """Replace the whole network atomically, after checking all of it."""
     _require_version(expected_revision, project.revision, "network")
+    # Progress comes from site entries; the document's progress fields are
+    # read-only and the check sees the recorded progress.
+    document = progress_overlay(project=project, document=document)
     if isinstance(document, dict) and not document.get("activities"):
         _check_project_only(document)
     else:
@@ -421,9 +427,103 @@ def member_remove(*, membership: Membership) -> None:
 
 
 def schedule_get(*, project: Project) -> dict[str, Any]:
-    """The critical-path schedule of the current revision, cached per revision."""
+    """The schedule readers work from: the latest published version, or, while
+    nothing is published, the critical path of the current revision and
+    progress.
+
+    ``published`` says which version it is (number, run, the revision and data
+    date it was computed from, whether the network changed since), and its
+    ``forecast`` sums up the critical path of the current network with the
+    latest progress (see :func:`forecast_get`), so the forecast finish is
+    current as soon as an entry is stored. ``published`` is None for the
+    on-demand critical path, which is itself that forecast.
+    """
+    latest = ScheduleVersion.objects.filter(project=project).order_by("-number").first()
+    if latest is not None:
+        return {
+            **latest.document,
+            "published": {
+                **version_summary(latest, project),
+                "forecast": _forecast_summary(project),
+            },
+        }
+    return {**schedule_cpm_get(project=project), "published": None}
+
+
+def forecast_get(*, project: Project) -> dict[str, Any]:
+    """The critical path of the current network with the latest progress.
+
+    It is the on-demand schedule (:func:`schedule_cpm_get`), cached per
+    (network revision, progress revision): an entry from site makes the next
+    read compute it afresh, in well under a second for a site-sized network.
+    """
+    return schedule_cpm_get(project=project)
+
+
+def _forecast_summary(project: Project) -> dict[str, Any] | None:
+    try:
+        return _summary_of(schedule_cpm_get(project=project))
+    except Invalid:
+        return None
+
+
+def _summary_of(schedule: dict[str, Any]) -> dict[str, Any]:
+    head = schedule["project"]
+    return {
+        "finish": head["finish"],
+        "data_date": head.get("data_date"),
+        "out_of_sequence": head.get("out_of_sequence"),
+        "revision": schedule.get("revision"),
+        "progress_revision": schedule.get("progress_revision", 0),
+        "critical_path": [s["key"] for s in schedule.get("critical_path", [])],
+        "out_of_sequence_pairs": [
+            w for w in schedule.get("warnings", []) if w["code"] == "out_of_sequence"
+        ],
+    }
+
+
+def version_summary(version: ScheduleVersion, project: Project) -> dict[str, Any]:
+    return {
+        "version": version.number,
+        "kind": version.kind,
+        "goal": version.goal or None,
+        "run": version.run_id,
+        "published_at": version.published_at.isoformat(),
+        "revision": version.revision,
+        "data_date": version.data_date.isoformat() if version.data_date else None,
+        "network_revision": project.revision,
+        "up_to_date": version.revision == project.revision,
+    }
+
+
+def versions_list(*, project: Project) -> Any:
+    """The project's published versions, newest first, without their documents."""
+    return (
+        ScheduleVersion.objects.filter(project=project)
+        .defer("document", "progress")
+        .order_by("-number", "-id")
+    )
+
+
+def version_get(*, project: Project, number: Any) -> ScheduleVersion:
+    try:
+        return ScheduleVersion.objects.get(project=project, number=int(number))
+    except (ScheduleVersion.DoesNotExist, TypeError, ValueError):
+        raise NotFound(f"no schedule version {number} in this project") from None
+
+
+def schedule_cpm_get(*, project: Project) -> dict[str, Any]:
+    """The critical-path schedule of the current revision and progress, cached
+    per (revision, progress_revision)."""
+    # The counters as the caller read the project, before the network below:
+    # a result is never labelled newer than what it was computed from.
+    revision, progress_revision = project.revision, project.progress_revision
     cached = ComputedSchedule.objects.filter(project=project).first()
-    if cached is not None and cached.revision == project.revision:
+    if (
+        cached is not None
+        and cached.revision == revision
+        and cached.document.get("progress_revision", 0) == progress_revision
+    ):
         return cached.document
     document = network_document(project)
     if not document["activities"]:
@@ -437,9 +537,10 @@ def schedule_get(*, project: Project) -> dict[str, Any]:
     except NetworkInvalid as exc:
         raise Invalid("the network cannot be scheduled", exc.problems) from None
     schedule = schedule_document(net, result)
-    schedule["revision"] = project.revision
+    schedule["revision"] = revision
+    schedule["progress_revision"] = progress_revision
     ComputedSchedule.objects.update_or_create(
-        project=project, defaults={"revision": project.revision, "document": schedule}
+        project=project, defaults={"revision": revision, "document": schedule}
     )
     return schedule
 

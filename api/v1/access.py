@@ -21,6 +21,11 @@ ACCESS: dict[str, tuple[frozenset[str], frozenset[str]]] = {
     "schedule": (ALL, frozenset()),
     "network": (PLANNING, SCHEDULER),
     "members": (PLANNING, SCHEDULER),
+    # Runs: every member follows them; schedulers queue and cancel them.
+    "runs": (ALL, SCHEDULER),
+    # Progress from site: every member reads it; site managers and schedulers
+    # record it.
+    "progress": (ALL, PLANNING),
 }
 
 

@@ -66,8 +66,14 @@ def _flatten(detail: Any, pointer: str = "") -> list[dict[str, str]]:
 def exception_handler(exc: Exception, context: dict[str, Any]) -> Response | None:
     if isinstance(exc, ServiceError):
         problems = [p.as_dict() for p in exc.problems]
+        retry_after = getattr(exc, "retry_after", None)
+        # Beside the envelope, what the client needs to act on the error (the
+        # current state of an activity whose progress clashed).
+        details = getattr(exc, "details", None) or {}
         return Response(
-            envelope(exc.code, exc.message, exc.status, problems), exc.status
+            {**envelope(exc.code, exc.message, exc.status, problems), **details},
+            exc.status,
+            headers={"Retry-After": str(retry_after)} if retry_after else None,
         )
     if isinstance(exc, Http404):
         exc = exceptions.NotFound()

@@ -62,6 +62,12 @@ def add_error_envelope(result: dict[str, Any], generator, request, public) -> di
             if method not in {"get", "post", "put", "patch", "delete"}:
                 continue
             responses = operation.setdefault("responses", {})
+            for answer in responses.values():
+                # An error answer declared by a view without a body schema
+                # (503 of queueing a run) carries the envelope too.
+                if answer.get("description", "").startswith("error:"):
+                    answer["description"] = answer["description"][6:].strip()
+                    answer["content"] = {"application/json": {"schema": ref}}
             for status, text in ERROR_STATUSES.items():
                 responses.setdefault(
                     status,

@@ -16,6 +16,9 @@ nested.register("crews", views.CrewViewSet, basename="crew")
 nested.register("activities", views.ActivityViewSet, basename="activity")
 nested.register("relations", views.RelationViewSet, basename="relation")
 nested.register("members", views.MemberViewSet, basename="member")
+nested.register("runs", views.RunViewSet, basename="run")
+nested.register("progress", views.ProgressViewSet, basename="progress")
+nested.register("schedule/versions", views.VersionViewSet, basename="version")
 
 urlpatterns = [
     path("auth/token", views.TokenView.as_view(), name="token"),

@@ -25,10 +25,18 @@ from rest_framework.response import Response
 from rest_framework.throttling import AnonRateThrottle
 from rest_framework.views import APIView
 
-from scheduling import services
+from scheduling import progress_entries, runs, services
 from scheduling.bridge import network_document
 from scheduling.errors import Invalid, NotFound
-from scheduling.models import Activity, Calendar, Crew, Membership, Project, Relation
+from scheduling.models import (
+    Activity,
+    Calendar,
+    Crew,
+    Membership,
+    Project,
+    Relation,
+    Run,
+)
 
 from . import serializers as s
 from .access import etag, if_match, project_for
@@ -175,15 +183,44 @@ class ProjectViewSet(viewsets.ViewSet):
         )
 
     @extend_schema(
-        responses={200: OpenApiResponse(description="the sitepace.schedule/1 document")}
+        responses={
+            200: OpenApiResponse(
+                description="the latest published sitepace.schedule/1 document "
+                "(``published`` names its version), or while nothing is published "
+                "the critical path of the current revision (``published`` null)"
+            )
+        }
     )
     @action(detail=True, methods=["get"])
     def schedule(self, request, pk=None):
         project = project_for(request, pk, "schedule", write=False)
-        return Response(
-            services.schedule_get(project=project),
-            headers={"ETag": etag(project.revision, "r")},
+        document = services.schedule_get(project=project)
+        published = document["published"]
+        tag = (
+            f"v{published['version']}-r{project.revision}"
+            if published
+            else f"r{project.revision}"
         )
+        forecast = (published or {}).get("forecast") or document
+        if forecast.get("progress_revision"):
+            tag += f"-p{forecast['progress_revision']}"
+        return Response(document, headers={"ETag": f'"{tag}"'})
+
+    @extend_schema(
+        responses={
+            200: OpenApiResponse(
+                description="the sitepace.schedule/1 critical path of the current "
+                "network with the latest progress from site, cached per "
+                "(revision, progress_revision)"
+            )
+        }
+    )
+    @action(detail=True, methods=["get"])
+    def forecast(self, request, pk=None):
+        project = project_for(request, pk, "schedule", write=False)
+        document = services.forecast_get(project=project)
+        tag = f'"r{document["revision"]}-p{document["progress_revision"]}"'
+        return Response(document, headers={"ETag": tag})
 
 
 class CsvText(BaseParser):
@@ -272,19 +309,27 @@ class KeyedViewSet(NestedViewSet):
     def filtered(self, request, qs: QuerySet) -> QuerySet:
         return qs
 
+    def out_context(self, project: Project) -> dict[str, Any]:
+        """What the output serializer needs besides the rows."""
+        return {}
+
+    def out(self, project: Project, rows: Any, many: bool = False) -> Any:
+        return self.serializer_out(
+            rows, many=many, context=self.out_context(project)
+        ).data
+
     def list(self, request, project_pk=None):
         project = self.project(write=False)
         qs = self.filtered(request, self.model.objects.filter(project=project))
         qs = _ordered(request, qs, self.section)
         pages = Pages()
         page = pages.paginate_queryset(qs, request, view=self)
-        return pages.get_paginated_response(self.serializer_out(page, many=True).data)
+        return pages.get_paginated_response(self.out(project, page, many=True))
 
     def retrieve(self, request, project_pk=None, pk=None):
-        row = self._row(self.project(write=False), pk)
-        return Response(
-            self.serializer_out(row).data, headers={"ETag": etag(row.version)}
-        )
+        project = self.project(write=False)
+        row = self._row(project, pk)
+        return Response(self.out(project, row), headers={"ETag": etag(row.version)})
 
     def create(self, request, project_pk=None):
         project = self.project(write=True)
@@ -301,7 +346,7 @@ class KeyedViewSet(NestedViewSet):
         )
         row = self.model.objects.get(project=project, key=entry["key"])
         return Response(
-            self.serializer_out(row).data,
+            self.out(project, row),
             status=status.HTTP_201_CREATED,
             headers={"ETag": etag(row.version)},
         )
@@ -321,9 +366,7 @@ class KeyedViewSet(NestedViewSet):
             current_version=row.version,
         )
         row = self.model.objects.get(project=project, key=entry.get("key", row.key))
-        return Response(
-            self.serializer_out(row).data, headers={"ETag": etag(row.version)}
-        )
+        return Response(self.out(project, row), headers={"ETag": etag(row.version)})
 
     def update(self, request, project_pk=None, pk=None):
         return self._change(request, pk, partial=False)
@@ -377,6 +420,9 @@ class ActivityViewSet(CsvActions, KeyedViewSet):
     csv_section = "activities"
     serializer_in, serializer_out = s.ActivityIn, s.ActivityOut
 
+    def out_context(self, project: Project) -> dict[str, Any]:
+        return {"progress": progress_entries.progress_states_get(project=project)}
+
     def filtered(self, request, qs: QuerySet) -> QuerySet:
         q = request.query_params
         if q.get("crew"):
@@ -409,7 +455,7 @@ class ActivityViewSet(CsvActions, KeyedViewSet):
                 "critical must be true or false",
                 [services.Problem("/critical", "bad_flag", "use true or false")],
             )
-        doc = services.schedule_get(project=self.project(write=False))
+        doc = services.schedule_cpm_get(project=self.project(write=False))
         keys = []
         for a in doc["activities"]:
             if critical in {"true", "1"} and not a["critical"]:
@@ -531,3 +577,171 @@ class MemberViewSet(NestedViewSet):
             raise NotFound("no such member of this project")
         services.member_remove(membership=member)
         return Response(status=status.HTTP_204_NO_CONTENT)
+
+
+@extend_schema_view(
+    list=extend_schema(responses=s.page_of(s.RunOut)),
+    retrieve=extend_schema(responses=s.RunOut),
+    create=extend_schema(
+        request=s.RunIn,
+        responses={
+            202: s.RunOut,
+            503: OpenApiResponse(
+                description="error: the work queue cannot be reached; nothing was "
+                "queued; ask again after Retry-After seconds"
+            ),
+        },
+    ),
+    cancel=extend_schema(request=None, responses=s.RunOut),
+)
+class RunViewSet(NestedViewSet):
+    """Runs of the critical path or the levelling: queue, follow, cancel.
+
+    One active run per project: a request while one is waiting or working is
+    refused with 409 naming it.
+    """
+
+    area = "runs"
+
+    def _runs(self, project: Project) -> QuerySet:
+        from django.db.models import F
+
+        return (
+            Run.objects.filter(project=project)
+            .select_related("requested_by")
+            .annotate(version_number=F("version__number"))
+        )
+
+    def list(self, request, project_pk=None):
+        project = self.project(write=False)
+        qs = self._runs(project).order_by("-id")
+        pages = Pages()
+        page = pages.paginate_queryset(qs, request, view=self)
+        return pages.get_paginated_response(s.RunOut(page, many=True).data)
+
+    def retrieve(self, request, project_pk=None, pk=None):
+        project = self.project(write=False)
+        run = runs.run_get(project=project, run_id=pk)
+        run = self._runs(project).get(pk=run.pk)
+        return Response(s.RunOut(run).data)
+
+    def create(self, request, project_pk=None):
+        project = self.project(write=True)
+        data = s.RunIn(data=request.data)
+        data.is_valid(raise_exception=True)
+        run = runs.run_queue(project=project, user=request.user, **data.validated_data)
+        run = self._runs(project).get(pk=run.pk)
+        return Response(
+            s.RunOut(run).data,
+            status=status.HTTP_202_ACCEPTED,
+            headers={"Location": f"/api/v1/projects/{project.pk}/runs/{run.pk}"},
+        )
+
+    @action(detail=True, methods=["post"])
+    def cancel(self, request, project_pk=None, pk=None):
+        project = self.project(write=True)
+        run = runs.run_cancel(run=runs.run_get(project=project, run_id=pk))
+        return Response(s.RunOut(self._runs(project).get(pk=run.pk)).data)
+
+
+@extend_schema_view(
+    list=extend_schema(responses=s.page_of(s.VersionOut)),
+    retrieve=extend_schema(
+        responses=s.VersionDetailOut,
+        parameters=[
+            OpenApiParameter(
+                "number", int, OpenApiParameter.PATH, description="version number"
+            )
+        ],
+    ),
+)
+class VersionViewSet(NestedViewSet):
+    """Published schedule versions, newest first, each with its change summary."""
+
+    area = "schedule"
+    lookup_field = "number"
+
+    def list(self, request, project_pk=None):
+        project = self.project(write=False)
+        qs = services.versions_list(project=project)
+        pages = Pages()
+        page = pages.paginate_queryset(qs, request, view=self)
+        return pages.get_paginated_response(s.VersionOut(page, many=True).data)
+
+    def retrieve(self, request, project_pk=None, number=None):
+        project = self.project(write=False)
+        version = services.version_get(project=project, number=number)
+        return Response(
+            s.VersionDetailOut(version).data, headers={"ETag": f'"v{version.number}"'}
+        )
+
+
+@extend_schema_view(
+    list=extend_schema(
+        responses=s.page_of(s.ProgressEntryOut),
+        parameters=[
+            OpenApiParameter("activity", str, description="only this activity's key")
+        ],
+    ),
+    retrieve=extend_schema(responses=s.ProgressEntryOut),
+    create=extend_schema(
+        request=s.ProgressIn,
+        parameters=[
+            OpenApiParameter(
+                "Idempotency-Key",
+                str,
+                OpenApiParameter.HEADER,
+                description="a new key (a UUID) per entry; a retry with the same "
+                "key gets the first answer and stores nothing new",
+            )
+        ],
+        responses={
+            201: s.ProgressEntryOut,
+            409: s.ProgressConflictOut,
+            422: OpenApiResponse(
+                description="error: the Idempotency-Key was used for another entry"
+            ),
+        },
+    ),
+)
+class ProgressViewSet(NestedViewSet):
+    """Progress entries from site: append-only; no change or deletion."""
+
+    area = "progress"
+
+    def list(self, request, project_pk=None):
+        project = self.project(write=False)
+        qs = progress_entries.progress_list(
+            project=project, activity=request.query_params.get("activity")
+        )
+        pages = Pages()
+        page = pages.paginate_queryset(qs, request, view=self)
+        return pages.get_paginated_response(s.ProgressEntryOut(page, many=True).data)
+
+    def retrieve(self, request, project_pk=None, pk=None):
+        project = self.project(write=False)
+        entry = progress_entries.progress_get(project=project, entry_id=pk)
+        return Response(s.ProgressEntryOut(entry).data)
+
+    def create(self, request, project_pk=None):
+        project = self.project(write=True)
+        data = s.ProgressIn(data=request.data)
+        data.is_valid(raise_exception=True)
+        recorded = progress_entries.progress_record(
+            project=project,
+            user=request.user,
+            values=dict(data.validated_data),
+            idempotency_key=request.headers.get("Idempotency-Key"),
+            render=lambda entry, state: dict(
+                s.ProgressEntryOut(entry, context={"state": state}).data
+            ),
+        )
+        return Response(
+            recorded.answer,
+            status=recorded.status,
+            headers={
+                "Location": f"/api/v1/projects/{project.pk}/progress/"
+                f"{recorded.entry_id}",
+                "Idempotent-Replay": "true" if recorded.replayed else "false",
+            },
+        )

@@ -1,9 +1,20 @@
-"""``manage.py demo [--check]``: load the demo project and show its schedule."""
+"""``manage.py demo [--check] [--port N]``: load the demo project and run it.
+
+Without ``--check`` it then starts the web server, a Celery worker and the
+nightly timer (Celery beat) as child processes on the configured database and
+broker (SQLite and the file-system broker by default), and stops all three
+when it is interrupted (Ctrl-C) or when one of them stops.
+"""
 
 from __future__ import annotations
 
+import os
 import secrets
+import signal
+import subprocess
+import sys
 import textwrap
+import time
 
 from django.conf import settings
 from django.core.management import call_command
@@ -36,10 +47,14 @@ class Command(BaseCommand):
         parser.add_argument(
             "--check",
             action="store_true",
-            help="run non-interactively and exit 0 when everything works (for CI)",
+            help="run non-interactively and exit 0 when everything works (for CI); "
+            "starts no server",
+        )
+        parser.add_argument(
+            "--port", type=int, default=8000, help="web server port (default 8000)"
         )
 
-    def handle(self, *args, check=False, **options):
+    def handle(self, *args, check=False, port=8000, **options):
         try:
             document = document_read(str(settings.BASE_DIR / DEMO_FILE))
         except DocumentUnreadable as exc:
@@ -48,7 +63,7 @@ class Command(BaseCommand):
         passwords = {role: secrets.token_urlsafe(9) for role in Role.values}
         try:
             project = services.demo_load(document=document, passwords=passwords)
-            schedule = services.schedule_get(project=project)
+            schedule = services.schedule_cpm_get(project=project)
             peaks = services.crew_peaks_get(project=project)
         except ServiceError as exc:
             problems = "\n".join(f"  {p}" for p in exc.problems)
@@ -111,9 +126,77 @@ class Command(BaseCommand):
             out.write("demo check: ok")
         else:
             out.write(
-                "API: POST /api/v1/auth/token with a demo user's name and password, "
-                f"then GET /api/v1/projects/{project.pk}/schedule."
+                f"API: POST http://127.0.0.1:{port}/api/v1/auth/token with a demo "
+                "user's name and password, then POST "
+                f"/api/v1/projects/{project.pk}/runs/ with "
+                '{"kind": "level", "time_limit": 10} and GET '
+                f"/api/v1/projects/{project.pk}/schedule."
             )
+            out.write(f"Pages: http://127.0.0.1:{port}/app/login")
+            out.write("")
+            self._serve(port)
+
+    def _serve(self, port: int) -> None:
+        """Run the web server, a worker and the timer until interrupted."""
+        python = sys.executable
+        manage = str(settings.BASE_DIR / "manage.py")
+        celery = [python, "-m", "celery", "-A", "api.celery"]
+        commands = {
+            "web server": [
+                python,
+                manage,
+                "runserver",
+                "--noreload",
+                f"127.0.0.1:{port}",
+            ],
+            "worker": [
+                *celery,
+                "worker",
+                "--loglevel=INFO",
+                "--concurrency=1",
+                "--without-gossip",
+                "--without-mingle",
+                "--hostname=sitepace-demo@%h",
+            ],
+            "nightly timer": [*celery, "beat", "--loglevel=INFO"],
+        }
+        stopping: list[int] = []
+
+        def stop(signum, frame):
+            stopping.append(signum)
+
+        previous = {
+            sig: signal.signal(sig, stop) for sig in (signal.SIGINT, signal.SIGTERM)
+        }
+        children: dict[str, subprocess.Popen] = {}
+        try:
+            for name, command in commands.items():
+                # Each child in its own session: Ctrl-C reaches only this
+                # command, which then stops the children in order.
+                children[name] = subprocess.Popen(
+                    command, cwd=settings.BASE_DIR, start_new_session=True
+                )
+            self.stdout.write(
+                "Started: "
+                + ", ".join(f"{n} (pid {p.pid})" for n, p in children.items())
+                + ". Ctrl-C stops them all."
+            )
+            self.stdout.flush()
+            ended = None
+            while not stopping and ended is None:
+                time.sleep(0.3)
+                ended = next(
+                    (n for n, p in children.items() if p.poll() is not None), None
+                )
+            if ended is not None and not stopping:
+                self.stderr.write(f"demo: the {ended} stopped; stopping the rest")
+        finally:
+            _stop_all(children)
+            for sig, handler in previous.items():
+                signal.signal(sig, handler)
+        self.stdout.write("demo: stopped the web server, the worker and the timer")
+        if ended is not None and not stopping:
+            raise CommandError(f"the {ended} stopped by itself")
 
 
 def _driver(driver: dict) -> str:
@@ -125,3 +208,28 @@ def _driver(driver: dict) -> str:
     if driver["kind"] == "not_before":
         return f"not before {driver['date']}"
     return driver["kind"].replace("_", " ")
+
+
+def _stop_all(children: dict, grace: float = 10.0) -> None:
+    """SIGTERM to every child, SIGKILL to its process group (the worker's pool
+    too) after ``grace`` seconds: a worker in the middle of a long solve is not
+    waited for, its run is taken up again by the next worker (scheduling/runs.py).
+    """
+    for proc in children.values():
+        if proc.poll() is None:
+            proc.send_signal(signal.SIGTERM)
+    deadline = time.monotonic() + grace
+    for proc in children.values():
+        try:
+            proc.wait(timeout=max(0.1, deadline - time.monotonic()))
+        except subprocess.TimeoutExpired:
+            try:
+                os.killpg(proc.pid, signal.SIGKILL)
+            except ProcessLookupError:
+                pass
+            proc.wait()
+        try:
+            # Whatever the child left behind in its group (pool processes).
+            os.killpg(proc.pid, signal.SIGKILL)
+        except (ProcessLookupError, PermissionError):
+            pass
