@@ -4,6 +4,7 @@ from django.http import JsonResponse
 from django.urls import include, path
 from drf_spectacular.views import SpectacularAPIView, SpectacularSwaggerView
 
+from frontend.site_views import site
 from scheduling.engine import SITE_CAUTION
 
 
@@ -20,6 +21,8 @@ urlpatterns = [
         name="login",
     ),
     path("app/logout", auth_views.LogoutView.as_view(), name="logout"),
+    path("app/projects/", include("frontend.urls")),
+    path("app/site/<str:project_id>/", site, name="site_progress"),
     path("api/v1/", include("api.v1.urls")),
     path("api/schema/", SpectacularAPIView.as_view(), name="schema"),
     path("api/docs/", SpectacularSwaggerView.as_view(url_name="schema"), name="docs"),

@@ -1,0 +1,190 @@
+"""What the pages show, read through the services and the bridge.
+
+Each page reads the schedule the services publish (``schedule_get``: the
+latest published schedule, or the critical path computed on demand) and the
+network document (calendars, crews, demands, relations), and hands them to
+the chart module. Nothing here writes.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from dataclasses import dataclass
+from typing import Any
+
+from scheduling.bridge import network_document
+from scheduling.engine import SITE_CAUTION
+from scheduling.models import Membership, Project, Run
+from scheduling.services import schedule_get
+
+from . import charts
+
+
+@dataclass(frozen=True)
+class PageData:
+    project: Project
+    schedule: dict[str, Any]
+    network: dict[str, Any]
+
+    @property
+    def levelled(self) -> bool:
+        return charts.is_levelled(self.schedule)
+
+
+def page_data_get(*, project: Project) -> PageData:
+    """The schedule and the network of ``project``. Raises the services' errors
+    (a project without activities, a network that cannot be scheduled)."""
+    return PageData(
+        project=project,
+        schedule=schedule_get(project=project),
+        network=network_document(project),
+    )
+
+
+def projects_of_user(*, user: Any) -> list[Membership]:
+    return list(
+        Membership.objects.filter(user=user)
+        .select_related("project")
+        .order_by("project__name", "project_id")
+    )
+
+
+def _describe_driver(driver: dict[str, Any]) -> str:
+    kind = driver.get("kind", "")
+    if kind == "relation":
+        lag = driver.get("lag") or 0
+        unit = str(driver.get("lag_unit", "workdays")).replace("_", " ")
+        unit = "working days" if unit == "workdays" else unit
+        lag_text = f" {lag:+d} {unit}" if lag else ""
+        return f"{driver.get('type', 'FS')}{lag_text} from {driver.get('pred')}"
+    if kind == "crew":
+        return f"crew {driver.get('crew')} handed on by {driver.get('pred')}"
+    if kind == "crew_unavailable":
+        return f"crew {driver.get('crew')} back on {driver.get('date')}"
+    if kind == "not_before":
+        return f"not before {driver.get('date')}"
+    if kind == "actual_start":
+        return f"started {driver.get('date')}"
+    if kind == "levelling":
+        return f"held to {driver.get('date')} by the levelling"
+    if kind == "project_start":
+        return f"project start {driver.get('date', '')}".strip()
+    if kind == "data_date":
+        return f"data date {driver.get('date', '')}".strip()
+    return kind.replace("_", " ")
+
+
+def _changes_summary(changes: dict[str, Any]) -> list[str]:
+    """Plain lines from a published version's comparison with the one before."""
+    lines = []
+    finish = changes.get("finish")
+    if isinstance(finish, dict):
+        before, after = (
+            finish.get("previous") or finish.get("before"),
+            (finish.get("current") or finish.get("after") or finish.get("finish")),
+        )
+        days = finish.get("days")
+        if before and after:
+            shift = f" ({days:+d} days)" if isinstance(days, int) else ""
+            lines.append(f"finish moved from {before} to {after}{shift}")
+    elif finish:
+        lines.append(f"finish: {finish}")
+    moved = changes.get("moved")
+    if isinstance(moved, list):
+        lines.append(f"{len(moved)} activities moved")
+    elif isinstance(moved, int):
+        lines.append(f"{moved} activities moved")
+    for key, value in changes.items():
+        if key in ("finish", "moved"):
+            continue
+        if isinstance(value, (str, int, float)):
+            lines.append(f"{key.replace('_', ' ')}: {value}")
+        elif isinstance(value, (list, dict)):
+            lines.append(f"{key.replace('_', ' ')}: {len(value)} entries")
+    return lines
+
+
+def last_run_get(*, project: Project) -> dict[str, Any] | None:
+    """The project's latest run and, when it published, its change summary."""
+    run = Run.objects.filter(project=project).order_by("-id").first()
+    if run is None:
+        return None
+    version = getattr(run, "version", None) if run.state == "published" else None
+    return {
+        "id": run.pk,
+        "kind": run.get_kind_display(),
+        "goal": run.get_goal_display() if run.goal else "",
+        "state": run.get_state_display(),
+        "requested_at": run.requested_at,
+        "finished_at": run.finished_at,
+        "best_finish": run.best_finish,
+        "error": run.error,
+        "version": version.number if version else None,
+        "changes": _changes_summary(version.changes or {}) if version else [],
+    }
+
+
+def overview_get(*, project: Project) -> dict[str, Any]:
+    """The overview's figures: forecast finish, data date, percent complete,
+    the driving path, milestones and the last run."""
+    data = page_data_get(project=project)
+    schedule = data.schedule
+    summary = schedule.get("project") or {}
+    levelling = schedule.get("levelling") or {}
+    levelled = data.levelled
+    finish = levelling.get("finish") if levelled else None
+    path = levelling.get("critical_path") if levelled else None
+    path = path or schedule.get("critical_path") or []
+    floats = {
+        a["key"]: (
+            a.get("level_total_float", a["total_float"])
+            if levelled
+            else a["total_float"]
+        )
+        for a in schedule.get("activities") or []
+    }
+    dates = {
+        a["key"]: (a.get("start") or a["early_start"]) if levelled else a["early_start"]
+        for a in schedule.get("activities") or []
+    }
+    milestones = [
+        {
+            "key": a["key"],
+            "name": a.get("name") or "",
+            "date": dates[a["key"]],
+            "float": floats[a["key"]],
+            "critical": bool(a.get("level_critical", a["critical"]))
+            if levelled
+            else bool(a["critical"]),
+        }
+        for a in schedule.get("activities") or []
+        if int(a.get("duration") or 0) == 0
+    ]
+    return {
+        "data": data,
+        "levelled": levelled,
+        "finish": finish or summary.get("finish"),
+        "critical_path_finish": summary.get("finish"),
+        "start": summary.get("start"),
+        "data_date": summary.get("data_date"),
+        "deadline": summary.get("deadline"),
+        "working_days": summary.get("working_days"),
+        "percent_complete": round(charts.percent_complete(schedule), 1),
+        "activities": len(schedule.get("activities") or []),
+        "path": [
+            {
+                "key": s["key"],
+                "name": s.get("name") or "",
+                "start": dates.get(s["key"]),
+                "float": floats.get(s["key"]),
+                "driver": _describe_driver(s.get("driver") or {}),
+            }
+            for s in path
+        ],
+        "milestones": milestones,
+        "levelling": levelling,
+        "last_run": last_run_get(project=project),
+        "caution": schedule.get("caution") or SITE_CAUTION,
+        "revision": schedule.get("revision", project.revision),
+        "today": dt.date.today(),
+    }

@@ -1,0 +1,56 @@
+"""The site page: the crews' look-ahead and progress entry on a tablet.
+
+Server-rendered; ``static/frontend/site.js`` keeps entries in the browser
+first and sends them with their idempotency keys when the signal allows.
+"""
+
+from __future__ import annotations
+
+from django.contrib.auth.decorators import login_required
+from django.middleware.csrf import get_token
+from django.shortcuts import render
+
+from api.v1.access import ACCESS, project_for
+from scheduling.engine import SITE_CAUTION
+from scheduling.errors import ServiceError
+from scheduling.models import Membership
+
+from . import site_selectors
+
+
+@login_required
+def site(request, project_id):
+    try:
+        project = project_for(request, project_id, "progress", write=False)
+        role = (
+            Membership.objects.filter(project=project, user=request.user)
+            .values_list("role", flat=True)
+            .first()
+        )
+        context = site_selectors.site_page_get(
+            project=project, crew=request.GET.get("crew", "")
+        )
+    except ServiceError as exc:
+        return render(
+            request,
+            "frontend/error.html",
+            {
+                "status": exc.status,
+                "message": exc.message,
+                "problems": exc.problems,
+                "caution": SITE_CAUTION,
+            },
+            status=exc.status,
+        )
+    return render(
+        request,
+        "frontend/site.html",
+        {
+            **context,
+            "project": project,
+            "page": "site",
+            "can_record": role in ACCESS["progress"][1],
+            "site_caution": SITE_CAUTION,
+            "csrf": get_token(request),
+        },
+    )
