@@ -12,12 +12,17 @@ import datetime as dt
 from dataclasses import dataclass
 from typing import Any
 
+from django.conf import settings
+
 from scheduling.bridge import network_document
 from scheduling.engine import SITE_CAUTION
-from scheduling.models import Membership, Project, Run
+from scheduling.models import ACTIVE_STATES, Membership, Project, Role, Run
 from scheduling.services import schedule_get
 
 from . import charts
+
+#: How many moved activities a change line names (largest moves first).
+MOVED_SHOWN = 8
 
 
 @dataclass(frozen=True)
@@ -75,32 +80,39 @@ def _describe_driver(driver: dict[str, Any]) -> str:
 
 
 def _changes_summary(changes: dict[str, Any]) -> list[str]:
-    """Plain lines from a published version's comparison with the one before."""
+    """Plain lines from a published version's comparison with the one before
+    (the summary :func:`scheduling.runs.changes_between` stores)."""
+    if not changes:
+        return []
+    if changes.get("previous_version") is None:
+        return [f"the first published version: finish {changes.get('finish')}"]
     lines = []
-    finish = changes.get("finish")
-    if isinstance(finish, dict):
-        before, after = (
-            finish.get("previous") or finish.get("before"),
-            (finish.get("current") or finish.get("after") or finish.get("finish")),
-        )
-        days = finish.get("days")
-        if before and after:
-            shift = f" ({days:+d} days)" if isinstance(days, int) else ""
-            lines.append(f"finish moved from {before} to {after}{shift}")
+    finish, before = changes.get("finish"), changes.get("previous_finish")
+    shift = changes.get("finish_shift_days")
+    if finish and before and finish != before:
+        lines.append(f"finish moved from {before} to {finish} ({shift:+d} days)")
     elif finish:
-        lines.append(f"finish: {finish}")
-    moved = changes.get("moved")
-    if isinstance(moved, list):
-        lines.append(f"{len(moved)} activities moved")
-    elif isinstance(moved, int):
-        lines.append(f"{moved} activities moved")
-    for key, value in changes.items():
-        if key in ("finish", "moved"):
-            continue
-        if isinstance(value, (str, int, float)):
-            lines.append(f"{key.replace('_', ' ')}: {value}")
-        elif isinstance(value, (list, dict)):
-            lines.append(f"{key.replace('_', ' ')}: {len(value)} entries")
+        lines.append(f"finish unchanged at {finish}")
+    moved = changes.get("moved") or []
+    if moved:
+        biggest = ", ".join(
+            f"{m['key']} {m['shift_days']:+d} d" for m in moved[:MOVED_SHOWN]
+        )
+        more = (
+            f" and {len(moved) - MOVED_SHOWN} more" if len(moved) > MOVED_SHOWN else ""
+        )
+        lines.append(f"{len(moved)} activities moved: {biggest}{more}")
+    for what in ("added", "removed"):
+        keys = changes.get(what) or []
+        if keys:
+            lines.append(
+                f"{len(keys)} activities {what}: {', '.join(keys[:MOVED_SHOWN])}"
+            )
+    for crew in changes.get("crew_peaks") or []:
+        lines.append(
+            f"crew {crew['crew']}: peak {crew['previous_peak']} → {crew['peak']} "
+            f"(capacity {crew['capacity']})"
+        )
     return lines
 
 
@@ -121,6 +133,28 @@ def last_run_get(*, project: Project) -> dict[str, Any] | None:
         "error": run.error,
         "version": version.number if version else None,
         "changes": _changes_summary(version.changes or {}) if version else [],
+    }
+
+
+def run_panel_get(*, project: Project, user: Any) -> dict[str, Any]:
+    """What the run panel needs: whether this user may start a run (schedulers
+    only, as in the API), the active run to follow, and the limits."""
+    role = (
+        Membership.objects.filter(project=project, user=user)
+        .values_list("role", flat=True)
+        .first()
+    )
+    active = (
+        Run.objects.filter(project=project, state__in=ACTIVE_STATES)
+        .order_by("-id")
+        .values_list("id", flat=True)
+        .first()
+    )
+    return {
+        "can_start": role == Role.SCHEDULER,
+        "active_run": active,
+        "max_seconds": int(settings.SITEPACE_RUN_MAX_SECONDS),
+        "default_seconds": 10,
     }
 
 

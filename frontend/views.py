@@ -69,10 +69,11 @@ def projects(request):
 @_page
 def overview(request, project):
     context = selectors.overview_get(project=project)
+    panel = selectors.run_panel_get(project=project, user=request.user)
     return render(
         request,
         "frontend/overview.html",
-        {**context, "project": project, "page": "overview"},
+        {**context, "run_panel": panel, "project": project, "page": "overview"},
     )
 
 
