@@ -29,6 +29,18 @@ from scheduling.files import DocumentUnreadable, document_read
 from scheduling.models import Role
 
 DEMO_FILE = "seed_data/demo_network.json"
+#: Seconds ``--check`` waits for the worker to publish the demo's levelling.
+CHECK_SECONDS = 180
+WORKER_OPTIONS = (
+    "--concurrency=1",
+    "--without-gossip",
+    "--without-mingle",
+    "--hostname=sitepace-demo@%h",
+)
+
+
+def _celery() -> list[str]:
+    return [sys.executable, "-m", "celery", "-A", "api.celery"]
 
 
 def _migrate_if_needed() -> None:
@@ -47,8 +59,9 @@ class Command(BaseCommand):
         parser.add_argument(
             "--check",
             action="store_true",
-            help="run non-interactively and exit 0 when everything works (for CI); "
-            "starts no server",
+            help="run non-interactively: level the demo through a real worker on "
+            "the configured broker, and exit 0 when it publishes (for CI); starts "
+            "no web server",
         )
         parser.add_argument(
             "--port", type=int, default=8000, help="web server port (default 8000)"
@@ -123,6 +136,7 @@ class Command(BaseCommand):
         if check:
             if len(schedule["activities"]) != len(document["activities"]) or not path:
                 raise CommandError("the demo schedule is incomplete")
+            self._check_levelling(project)
             out.write("demo check: ok")
         else:
             out.write(
@@ -136,11 +150,67 @@ class Command(BaseCommand):
             out.write("")
             self._serve(port)
 
+    def _check_levelling(self, project) -> None:
+        """Queue a levelling run, let a real worker process on the configured
+        broker (the file-system one by default) publish it, and stop the
+        worker. Raises :class:`CommandError` when the run does not publish."""
+        from scheduling import runs
+        from scheduling.models import ACTIVE_STATES, Run, RunState
+
+        out = self.stdout
+        for stale in Run.objects.filter(project=project, state__in=ACTIVE_STATES):
+            out.write(f"demo check: cancelling run {stale.pk}, left {stale.state}")
+            runs.run_cancel(run=stale)
+        scheduler = project.members.get(role=Role.SCHEDULER).user
+        try:
+            run = runs.run_queue(
+                project=project, user=scheduler, kind="level", time_limit=10
+            )
+        except ServiceError as exc:
+            raise CommandError(f"the levelling run cannot be queued: {exc}") from None
+        log = settings.VAR_DIR / "demo-check-worker.log"
+        out.write(f"Levelling run {run.pk} queued; a worker takes it (its log: {log}).")
+        with log.open("wb") as sink:
+            worker = {
+                "worker": subprocess.Popen(
+                    [*_celery(), "worker", *WORKER_OPTIONS, "--loglevel=INFO"],
+                    cwd=settings.BASE_DIR,
+                    stdout=sink,
+                    stderr=subprocess.STDOUT,
+                    start_new_session=True,
+                )
+            }
+        try:
+            deadline = time.monotonic() + CHECK_SECONDS
+            while time.monotonic() < deadline:
+                run.refresh_from_db()
+                if run.state not in ACTIVE_STATES:
+                    break
+                if worker["worker"].poll() is not None:
+                    raise CommandError("the worker stopped before the run ended")
+                time.sleep(0.5)
+        finally:
+            _stop_all(worker)
+        if run.state != RunState.PUBLISHED:
+            tail = log.read_text(errors="replace").splitlines()[-20:]
+            raise CommandError(
+                f"the levelling run did not publish within {CHECK_SECONDS} s: "
+                f"it is {run.state}{': ' + run.error if run.error else ''}\n"
+                "the worker's last lines:\n" + "\n".join(tail)
+            )
+        version = run.version
+        took = (run.finished_at - run.requested_at).total_seconds()
+        status = (version.document.get("levelling") or {}).get("status", "")
+        out.write(
+            f"Levelled by the worker in {took:.1f} s: finish {version.finish} "
+            f"({status}), published as schedule version {version.number}."
+        )
+
     def _serve(self, port: int) -> None:
         """Run the web server, a worker and the timer until interrupted."""
         python = sys.executable
         manage = str(settings.BASE_DIR / "manage.py")
-        celery = [python, "-m", "celery", "-A", "api.celery"]
+        celery = _celery()
         commands = {
             "web server": [
                 python,
@@ -149,15 +219,7 @@ class Command(BaseCommand):
                 "--noreload",
                 f"127.0.0.1:{port}",
             ],
-            "worker": [
-                *celery,
-                "worker",
-                "--loglevel=INFO",
-                "--concurrency=1",
-                "--without-gossip",
-                "--without-mingle",
-                "--hostname=sitepace-demo@%h",
-            ],
+            "worker": [*celery, "worker", *WORKER_OPTIONS, "--loglevel=INFO"],
             "nightly timer": [*celery, "beat", "--loglevel=INFO"],
         }
         stopping: list[int] = []
