@@ -190,6 +190,8 @@ def levelled_document(
         "gap_percent": round(levelled.gap_percent, 2),
         "objective": levelled.objective,
         "objective_bound": levelled.objective_bound,
+        # Wall seconds of the whole levelling: model, solves, heuristic, float.
+        "seconds": round(levelled.wall_time, 3),
         "heuristic_finish": (
             levelled.heuristic_finish.isoformat() if levelled.heuristic_finish else None
         ),
