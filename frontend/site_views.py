@@ -16,6 +16,7 @@ from scheduling.errors import ServiceError
 from scheduling.models import Membership
 
 from . import site_selectors
+from .views import error_page
 
 
 @login_required
@@ -31,17 +32,7 @@ def site(request, project_id):
             project=project, crew=request.GET.get("crew", "")
         )
     except ServiceError as exc:
-        return render(
-            request,
-            "frontend/error.html",
-            {
-                "status": exc.status,
-                "message": exc.message,
-                "problems": exc.problems,
-                "caution": SITE_CAUTION,
-            },
-            status=exc.status,
-        )
+        return error_page(request, exc)
     return render(
         request,
         "frontend/site.html",

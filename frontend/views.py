@@ -28,6 +28,21 @@ def _choice(request, name: str, allowed: dict[str, str], default: str) -> str:
     return value
 
 
+def error_page(request, exc: ServiceError):
+    """A domain error as a page with its status, its problems and the caution."""
+    return render(
+        request,
+        "frontend/error.html",
+        {
+            "status": exc.status,
+            "message": exc.message,
+            "problems": exc.problems,
+            "caution": SITE_CAUTION,
+        },
+        status=exc.status,
+    )
+
+
 def _page(view):
     """Sign-in required, the project read with the API's role table, and every
     domain error answered as a page with its status."""
@@ -39,17 +54,7 @@ def _page(view):
             project = project_for(request, project_id, "schedule", write=False)
             return view(request, project)
         except ServiceError as exc:
-            return render(
-                request,
-                "frontend/error.html",
-                {
-                    "status": exc.status,
-                    "message": exc.message,
-                    "problems": exc.problems,
-                    "caution": SITE_CAUTION,
-                },
-                status=exc.status,
-            )
+            return error_page(request, exc)
 
     return wrapped
 
