@@ -8,6 +8,7 @@ from django.contrib import admin
 
 from .models import (
     Activity,
+    Baseline,
     Calendar,
     ComputedSchedule,
     Crew,
@@ -85,6 +86,25 @@ class ProgressEntryAdmin(admin.ModelAdmin):
     ]
     list_filter = ["project", "kind", "delay_reason"]
     search_fields = ["activity_key", "note"]
+
+    def has_add_permission(self, request):
+        return False
+
+    def has_change_permission(self, request, obj=None):
+        return False
+
+    def has_delete_permission(self, request, obj=None):
+        return False
+
+
+@admin.register(Baseline)
+class BaselineAdmin(admin.ModelAdmin):
+    """Baselines never change: staff may read them; a scheduler captures one
+    and chooses the current one through the API."""
+
+    list_display = ["id", "project", "name", "version", "current", "captured_at"]
+    list_filter = ["project", "current"]
+    search_fields = ["name"]
 
     def has_add_permission(self, request):
         return False

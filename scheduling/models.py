@@ -465,6 +465,11 @@ class ProgressEntry(models.Model):
     percent_complete = models.PositiveSmallIntegerField(null=True, blank=True)
     #: Working days of the activity's calendar still to do, from the data date.
     remaining = models.PositiveIntegerField(null=True, blank=True)
+    #: The cost of the activity's work so far (cumulative, in the money of the
+    #: planned values); the latest entry that gives one wins.
+    actual_cost = models.DecimalField(
+        max_digits=14, decimal_places=2, null=True, blank=True
+    )
     #: Progress fields a correction empties (names from ``PROGRESS_FIELDS``).
     cleared = models.JSONField(default=list, blank=True)
     crew_count = models.PositiveIntegerField(null=True, blank=True)
@@ -514,6 +519,10 @@ class ProgressEntry(models.Model):
             models.CheckConstraint(
                 condition=Q(kind__in=EntryKind.values), name="progress_kind_known"
             ),
+            models.CheckConstraint(
+                condition=Q(actual_cost__isnull=True) | Q(actual_cost__gte=0),
+                name="progress_actual_cost_not_negative",
+            ),
         ]
         indexes = [
             models.Index(fields=["project", "activity", "id"], name="progress_fold"),
@@ -521,3 +530,57 @@ class ProgressEntry(models.Model):
 
     def __str__(self) -> str:
         return f"progress entry {self.pk} on {self.activity_key}"
+
+
+class Baseline(models.Model):
+    """A published schedule kept as the yardstick; never changed once stored.
+
+    ``activities`` holds, per activity key, the dates the schedule version
+    planned (levelled dates when the version was levelled, else early dates),
+    its duration, planned value and whether it is a milestone, so that later
+    edits of the network leave the baseline as it was. Only ``current`` ever
+    changes (``baseline_set_current``); at most one baseline per project is
+    current, by a partial unique index.
+    """
+
+    project = models.ForeignKey(
+        Project, on_delete=models.CASCADE, related_name="baselines"
+    )
+    name = models.CharField(max_length=100)
+    version = models.ForeignKey(
+        ScheduleVersion, on_delete=models.PROTECT, related_name="baselines"
+    )
+    captured_by = models.ForeignKey(
+        settings.AUTH_USER_MODEL,
+        null=True,
+        blank=True,
+        on_delete=models.SET_NULL,
+        related_name="+",
+    )
+    captured_at = models.DateTimeField(auto_now_add=True)
+    current = models.BooleanField(default=False)
+    start = models.DateField()
+    finish = models.DateField()
+    data_date = models.DateField(null=True, blank=True)
+    #: The project's calendar key when captured (working-day variances use it).
+    calendar = models.CharField(max_length=64, blank=True)
+    activities = models.JSONField(default=dict)
+
+    class Meta:
+        ordering = ["project", "-id"]
+        constraints = [
+            models.UniqueConstraint(
+                fields=["project", "name"], name="baseline_name_unique"
+            ),
+            models.UniqueConstraint(
+                fields=["project"],
+                condition=Q(current=True),
+                name="one_current_baseline_per_project",
+            ),
+            models.CheckConstraint(
+                condition=Q(finish__gte=F("start")), name="baseline_finish_after_start"
+            ),
+        ]
+
+    def __str__(self) -> str:
+        return f"baseline {self.name!r} of project {self.project_id}"

@@ -7,7 +7,8 @@ and ``remaining`` are two measures of one thing, so an entry that gives one
 drops the other; an entry that gives ``actual_finish`` makes the activity
 100 % complete with nothing remaining unless it says otherwise; a correction
 may empty fields explicitly (``cleared``). The latest crew count, note and
-delay reason win. The state's ``version`` is the number of entries folded in:
+delay reason win, and so does the latest ``actual_cost`` (the cost of the
+work so far, cumulative). The state's ``version`` is the number of entries folded in:
 the activity's *progress version*, which the device sends back as
 ``activity_version``.
 
@@ -46,6 +47,7 @@ import re
 import zoneinfo
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass, replace
+from decimal import Decimal
 from typing import Any
 
 from django.db import IntegrityError, transaction
@@ -67,6 +69,8 @@ from .models import (
 
 DATES = ("actual_start", "actual_finish")
 MAX_CREW = 1000
+#: The largest actual cost an entry stores (14 digits, 2 after the point).
+MAX_COST = Decimal("999999999999.99")
 KEY_PATTERN = re.compile(r"^[A-Za-z0-9._:~-]{1,100}$")
 
 
@@ -79,6 +83,7 @@ class ProgressState:
     percent_complete: int | None = None
     remaining: int | None = None
     crew_count: int | None = None
+    actual_cost: Decimal | None = None
     note: str = ""
     delay_reason: str = ""
     delay_note: str = ""
@@ -112,6 +117,9 @@ class ProgressState:
             "status": self.status,
             **{f: iso(v) for f, v in self.progress().items()},
             "crew_count": self.crew_count,
+            "actual_cost": (
+                None if self.actual_cost is None else float(self.actual_cost)
+            ),
             "note": self.note,
             "delay_reason": self.delay_reason,
             "delay_note": self.delay_note,
@@ -145,6 +153,8 @@ def step(state: ProgressState, entry: ProgressEntry) -> ProgressState:
     extra: dict[str, Any] = {}
     if entry.crew_count is not None:
         extra["crew_count"] = entry.crew_count
+    if entry.actual_cost is not None:
+        extra["actual_cost"] = entry.actual_cost
     if entry.note:
         extra["note"] = entry.note
     if entry.delay_reason or entry.delay_note:
@@ -184,6 +194,7 @@ def progress_states_get(*, project: Project) -> dict[int, ProgressState]:
             "recorded_at",
             "cleared",
             "crew_count",
+            "actual_cost",
             "note",
             "delay_reason",
             "delay_note",
@@ -375,6 +386,7 @@ def _record(
         remaining=values.get("remaining"),
         cleared=cleared,
         crew_count=values.get("crew_count"),
+        actual_cost=values.get("actual_cost"),
         note=values.get("note") or "",
         delay_reason=values.get("delay_reason") or "",
         delay_note=values.get("delay_note") or "",
@@ -499,6 +511,7 @@ def _check_rules(
         entry.percent_complete,
         entry.remaining,
         entry.crew_count,
+        entry.actual_cost,
         entry.note,
         entry.delay_reason,
         entry.delay_note,
@@ -510,7 +523,7 @@ def _check_rules(
                 "/",
                 "empty_entry",
                 f"{label}: the entry records nothing; give a date, percent_complete, "
-                "remaining, crew_count, a note or a delay",
+                "remaining, crew_count, actual_cost, a note or a delay",
             )
         )
     if entry.cleared and entry.kind != EntryKind.CORRECTION:
@@ -540,6 +553,15 @@ def _check_rules(
                 "out_of_range",
                 f"{label}: crew_count must be 0 to {MAX_CREW} people, got "
                 f"{entry.crew_count}",
+            )
+        )
+    if entry.actual_cost is not None and not 0 <= entry.actual_cost <= MAX_COST:
+        problems.append(
+            Problem(
+                "/actual_cost",
+                "out_of_range",
+                f"{label}: actual_cost is the cost of the work so far, 0 to "
+                f"{MAX_COST:,}, got {entry.actual_cost}",
             )
         )
     if entry.delay_reason == DelayReason.OTHER and not entry.delay_note.strip():

@@ -26,6 +26,11 @@ ACCESS: dict[str, tuple[frozenset[str], frozenset[str]]] = {
     # Progress from site: every member reads it; site managers and schedulers
     # record it.
     "progress": (ALL, PLANNING),
+    # The owner's status report: every member reads it (DESIGN.md "Roles").
+    "report": (ALL, frozenset()),
+    # Baselines: every member reads them; schedulers capture them and choose
+    # the current one. Nobody changes or deletes one.
+    "baselines": (ALL, SCHEDULER),
 }
 
 

@@ -189,6 +189,9 @@ class ProgressStateOut(serializers.Serializer):
         allow_null=True, help_text="working days still to do from the data date"
     )
     crew_count = serializers.IntegerField(allow_null=True)
+    actual_cost = serializers.FloatField(
+        allow_null=True, help_text="the cost of the work so far (cumulative)"
+    )
     note = serializers.CharField(allow_blank=True)
     delay_reason = serializers.CharField(allow_blank=True)
     delay_note = serializers.CharField(allow_blank=True)
@@ -382,6 +385,15 @@ class ProgressIn(serializers.Serializer):
     crew_count = serializers.IntegerField(
         required=False, allow_null=True, min_value=-(2**31), max_value=2**31 - 1
     )
+    actual_cost = serializers.DecimalField(
+        max_digits=14,
+        decimal_places=2,
+        required=False,
+        allow_null=True,
+        coerce_to_string=False,
+        help_text="the cost of the activity's work so far, cumulative, in the "
+        "money of the planned values (the latest entry that gives one wins)",
+    )
     note = serializers.CharField(
         required=False, allow_blank=True, max_length=2000, trim_whitespace=True
     )
@@ -420,6 +432,7 @@ class ProgressEntryOut(serializers.ModelSerializer):
     activity = serializers.CharField(source="activity_key")
     kind = serializers.CharField(help_text="record, or correction (see corrects)")
     recorded_by = serializers.SlugRelatedField(slug_field="username", read_only=True)
+    actual_cost = serializers.FloatField(read_only=True, allow_null=True)
     state = serializers.SerializerMethodField()
 
     class Meta:
@@ -435,6 +448,7 @@ class ProgressEntryOut(serializers.ModelSerializer):
             "remaining",
             "cleared",
             "crew_count",
+            "actual_cost",
             "note",
             "delay_reason",
             "delay_note",

@@ -19,9 +19,15 @@ nested.register("members", views.MemberViewSet, basename="member")
 nested.register("runs", views.RunViewSet, basename="run")
 nested.register("progress", views.ProgressViewSet, basename="progress")
 nested.register("schedule/versions", views.VersionViewSet, basename="version")
+nested.register("baselines", views.BaselineViewSet, basename="baseline")
 
 urlpatterns = [
     path("auth/token", views.TokenView.as_view(), name="token"),
+    path(
+        "projects/<int:project_pk>/report",
+        views.ReportView.as_view(),
+        name="project-report",
+    ),
     path("projects/<int:project_pk>/", include(nested.urls)),
     path("", include(router.urls)),
 ]

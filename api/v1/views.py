@@ -18,6 +18,7 @@ from rest_framework import status, viewsets
 from rest_framework.authtoken.models import Token
 from rest_framework.decorators import action
 from rest_framework.exceptions import ParseError
+from rest_framework.negotiation import DefaultContentNegotiation
 from rest_framework.pagination import PageNumberPagination
 from rest_framework.parsers import BaseParser
 from rest_framework.permissions import AllowAny, IsAuthenticated
@@ -25,8 +26,16 @@ from rest_framework.response import Response
 from rest_framework.throttling import AnonRateThrottle
 from rest_framework.views import APIView
 
-from scheduling import progress_entries, runs, services
+from scheduling import (
+    baselines,
+    progress_entries,
+    report,
+    report_render,
+    runs,
+    services,
+)
 from scheduling.bridge import network_document
+from scheduling.engine import Problem
 from scheduling.errors import Invalid, NotFound
 from scheduling.models import (
     Activity,
@@ -38,6 +47,7 @@ from scheduling.models import (
     Run,
 )
 
+from . import report_serializers as rs
 from . import serializers as s
 from .access import etag, if_match, project_for
 
@@ -745,3 +755,140 @@ class ProgressViewSet(NestedViewSet):
                 "Idempotent-Replay": "true" if recorded.replayed else "false",
             },
         )
+
+
+@extend_schema_view(
+    list=extend_schema(responses=s.page_of(rs.BaselineOut)),
+    retrieve=extend_schema(responses=rs.BaselineDetailOut),
+    create=extend_schema(request=rs.BaselineIn, responses={201: rs.BaselineDetailOut}),
+    current=extend_schema(request=None, responses=rs.BaselineOut),
+    compare=extend_schema(
+        parameters=[
+            OpenApiParameter(
+                "version",
+                int,
+                description="the published version to compare (default: the latest)",
+            )
+        ],
+        responses=rs.CompareOut,
+    ),
+)
+class BaselineViewSet(NestedViewSet):
+    """Baselines: captured from a published version, never changed or deleted;
+    one is current."""
+
+    area = "baselines"
+
+    def list(self, request, project_pk=None):
+        project = self.project(write=False)
+        qs = baselines.baselines_list(project=project)
+        pages = Pages()
+        page = pages.paginate_queryset(qs, request, view=self)
+        return pages.get_paginated_response(rs.BaselineOut(page, many=True).data)
+
+    def retrieve(self, request, project_pk=None, pk=None):
+        project = self.project(write=False)
+        row = baselines.baseline_get(project=project, baseline_id=pk)
+        return Response(rs.BaselineDetailOut(row).data)
+
+    def create(self, request, project_pk=None):
+        project = self.project(write=True)
+        data = rs.BaselineIn(data=request.data)
+        data.is_valid(raise_exception=True)
+        row = baselines.baseline_capture(
+            project=project, user=request.user, **data.validated_data
+        )
+        return Response(
+            rs.BaselineDetailOut(row).data,
+            status=status.HTTP_201_CREATED,
+            headers={"Location": f"/api/v1/projects/{project.pk}/baselines/{row.pk}"},
+        )
+
+    @action(detail=True, methods=["post"])
+    def current(self, request, project_pk=None, pk=None):
+        project = self.project(write=True)
+        row = baselines.baseline_get(project=project, baseline_id=pk)
+        return Response(
+            rs.BaselineOut(baselines.baseline_set_current(baseline=row)).data
+        )
+
+    @action(detail=True, methods=["get"])
+    def compare(self, request, project_pk=None, pk=None):
+        project = self.project(write=False)
+        row = baselines.baseline_get(project=project, baseline_id=pk)
+        return Response(
+            baselines.baseline_compare(
+                project=project,
+                baseline=row,
+                version=request.query_params.get("version"),
+            )
+        )
+
+
+class _FormatByParameter(DefaultContentNegotiation):
+    """JSON always; the report's ``format`` parameter picks CSV or PDF in the
+    view, so an unknown format is a 400 naming the parameter, not a 404."""
+
+    def select_renderer(self, request, renderers, format_suffix=None):
+        return renderers[0], renderers[0].media_type
+
+
+class ReportView(APIView):
+    """The owner's status report as of the data date: JSON, a zip of CSV files
+    or a PDF."""
+
+    permission_classes = [IsAuthenticated]
+    content_negotiation_class = _FormatByParameter
+    FORMATS = {
+        "json": None,
+        "csv": ("application/zip", "zip"),
+        "pdf": ("application/pdf", "pdf"),
+    }
+
+    @extend_schema(
+        operation_id="projects_report",
+        parameters=[
+            OpenApiParameter(
+                "format",
+                str,
+                enum=["json", "csv", "pdf"],
+                description="json (default), csv (a zip of one CSV file per "
+                "section) or pdf",
+            ),
+            OpenApiParameter(
+                "threshold",
+                int,
+                description="near-critical: total float up to this many working "
+                f"days (0 to {report.MAX_THRESHOLD}, default "
+                f"{report.DEFAULT_THRESHOLD})",
+            ),
+        ],
+        responses={
+            (200, "application/json"): rs.ReportOut,
+            (200, "application/zip"): OpenApiTypes.BINARY,
+            (200, "application/pdf"): OpenApiTypes.BINARY,
+        },
+    )
+    def get(self, request, project_pk=None):
+        project = project_for(request, project_pk, "report", write=False)
+        wanted = (request.query_params.get("format") or "json").strip().lower()
+        if wanted not in self.FORMATS:
+            raise Invalid(
+                f"format must be one of json, csv or pdf, got {wanted!r}",
+                [Problem("/format", "bad_format", "use json, csv or pdf")],
+            )
+        threshold = report.threshold_parse(request.query_params.get("threshold"))
+        kind = self.FORMATS[wanted]
+        if kind is None:
+            body = report.report_json_get(project=project, threshold=threshold)
+            return HttpResponse(body, content_type="application/json")
+        built = report.report_build(project=project, threshold=threshold)
+        body = (
+            report_render.report_csv_zip(built)
+            if wanted == "csv"
+            else report_render.report_pdf(built)
+        )
+        name = f"status-report-{project.pk}-{built['project']['data_date']}.{kind[1]}"
+        response = HttpResponse(body, content_type=kind[0])
+        response["Content-Disposition"] = f'attachment; filename="{name}"'
+        return response

@@ -2,11 +2,14 @@
 
 The rule (``api/v1/access.py``, DESIGN.md "Roles"):
 
-- an owner reads the project and its schedule, nothing else, and writes nothing;
+- an owner reads the project, its schedule, the status report and the
+  baselines, nothing else, and writes nothing;
 - a site manager reads the project, the schedule, the network (calendars,
   crews, activities, relations, the whole document) and the members, and
   writes nothing here (progress entries are theirs, elsewhere);
-- a scheduler reads and writes all of it;
+- a site manager also reads the report and the baselines;
+- a scheduler reads and writes all of it (a baseline is captured, made
+  current, never changed);
 - a user who is not a member of a project gets 404 for everything under it,
   whatever their role elsewhere: nobody learns that the project exists.
 
@@ -86,6 +89,23 @@ MATRIX: dict[str, dict[str, int]] = {
         "site_manager": FORBIDDEN,
         "scheduler": GONE,
     },
+    # The owner's status report and baselines: every member reads them; a
+    # scheduler captures baselines and chooses the current one.
+    "report.get": {"owner": OK, "site_manager": OK, "scheduler": OK},
+    "report.pdf": {"owner": OK, "site_manager": OK, "scheduler": OK},
+    "baselines.list": {"owner": OK, "site_manager": OK, "scheduler": OK},
+    "baselines.retrieve": {"owner": OK, "site_manager": OK, "scheduler": OK},
+    "baselines.compare": {"owner": OK, "site_manager": OK, "scheduler": OK},
+    "baselines.create": {
+        "owner": FORBIDDEN,
+        "site_manager": FORBIDDEN,
+        "scheduler": CREATED,
+    },
+    "baselines.current": {
+        "owner": FORBIDDEN,
+        "site_manager": FORBIDDEN,
+        "scheduler": OK,
+    },
 }
 
 
@@ -108,8 +128,10 @@ def test_the_matrix_follows_the_access_table_of_the_code():
         "activities": "network",
         "relations": "network",
         "members": "members",
+        "report": "report",
+        "baselines": "baselines",
     }
-    reads = {"list", "retrieve", "get"}
+    reads = {"list", "retrieve", "get", "pdf", "compare"}
     for endpoint, answers in MATRIX.items():
         resource, verb = endpoint.split(".")
         readers, writers = ACCESS[area_of[resource]]
@@ -143,6 +165,10 @@ def build_call(endpoint: str, project_id: int) -> Call:
         return Call("patch", path, {"name": "Workshop, phase two"}, rev)
     if resource == "schedule":
         return Call("get", base + "schedule")
+    if resource == "report":
+        return Call("get", base + ("report?format=pdf" if verb == "pdf" else "report"))
+    if resource == "baselines":
+        return _baseline_call(verb, project, base + "baselines/")
     if resource == "network":
         if verb == "get":
             return Call("get", base + "network")
@@ -198,6 +224,27 @@ def build_call(endpoint: str, project_id: int) -> Call:
         return Call("patch", item, changed[resource], version)
     assert verb == "delete"
     return Call("delete", item, None, version)
+
+
+def _baseline_call(verb: str, project: Project, collection: str) -> Call:
+    """A published version to capture, and a baseline to read or make current."""
+    from scheduling.baselines import baseline_capture
+    from tests.report.conftest import publish
+
+    version = publish(project)
+    if verb == "create":
+        return Call("post", collection, {"name": f"Baseline {version.number}"})
+    if verb == "list":
+        return Call("get", collection)
+    row = baseline_capture(
+        project=project, user=None, name=f"Kept {version.number}", make_current=False
+    )
+    if verb == "retrieve":
+        return Call("get", f"{collection}{row.pk}/")
+    if verb == "compare":
+        return Call("get", f"{collection}{row.pk}/compare")
+    assert verb == "current"
+    return Call("post", f"{collection}{row.pk}/current")
 
 
 @pytest.fixture
