@@ -14,9 +14,10 @@ from typing import Any
 
 from django.conf import settings
 
+from scheduling.baselines import baseline_current_get, workdays_for
 from scheduling.bridge import network_document
 from scheduling.engine import SITE_CAUTION
-from scheduling.models import ACTIVE_STATES, Membership, Project, Role, Run
+from scheduling.models import ACTIVE_STATES, Baseline, Membership, Project, Role, Run
 from scheduling.services import schedule_get
 
 from . import charts
@@ -30,20 +31,51 @@ class PageData:
     project: Project
     schedule: dict[str, Any]
     network: dict[str, Any]
+    baseline: Baseline | None = None
 
     @property
     def levelled(self) -> bool:
         return charts.is_levelled(self.schedule)
 
+    @property
+    def baseline_dates(self) -> dict[str, tuple[dt.date, dt.date]] | None:
+        """Activity key → the current baseline's (start, finish), for the chart."""
+        if self.baseline is None:
+            return None
+        return {
+            key: (dt.date.fromisoformat(a["start"]), dt.date.fromisoformat(a["finish"]))
+            for key, a in self.baseline.activities.items()
+        }
+
 
 def page_data_get(*, project: Project) -> PageData:
-    """The schedule and the network of ``project``. Raises the services' errors
-    (a project without activities, a network that cannot be scheduled)."""
+    """The schedule, the network and the current baseline of ``project``.
+    Raises the services' errors (a project without activities, a network that
+    cannot be scheduled)."""
     return PageData(
         project=project,
         schedule=schedule_get(project=project),
         network=network_document(project),
+        baseline=baseline_current_get(project=project),
     )
+
+
+def baseline_card_get(data: PageData, finish: str | None) -> dict[str, Any] | None:
+    """The current baseline against the forecast finish: its name, its finish
+    and the variance in working days of the project calendar (positive when
+    the forecast is later)."""
+    base = data.baseline
+    if base is None or not finish:
+        return None
+    forecast = dt.date.fromisoformat(finish)
+    days = workdays_for(data.network, [base.finish, forecast], base.calendar or None)
+    return {
+        "name": base.name,
+        "finish": base.finish.isoformat(),
+        "variance": days.variance(base.finish, forecast),
+        "version": base.version.number,
+        "captured_at": base.captured_at,
+    }
 
 
 def projects_of_user(*, user: Any) -> list[Membership]:
@@ -197,6 +229,7 @@ def overview_get(*, project: Project) -> dict[str, Any]:
     return {
         "data": data,
         "levelled": levelled,
+        "baseline": baseline_card_get(data, finish or summary.get("finish")),
         "finish": finish or summary.get("finish"),
         "critical_path_finish": summary.get("finish"),
         "start": summary.get("start"),

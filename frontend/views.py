@@ -89,7 +89,12 @@ def bars(request, project):
     links = _choice(request, "relations", {"on": "on", "off": "off"}, "off")
     data = selectors.page_data_get(project=project)
     chart = charts.bar_chart(
-        data.schedule, data.network, zoom=zoom, group=group, relations=links == "on"
+        data.schedule,
+        data.network,
+        zoom=zoom,
+        group=group,
+        baseline=data.baseline_dates,
+        relations=links == "on",
     )
     return render(
         request,

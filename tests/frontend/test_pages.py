@@ -128,3 +128,46 @@ def test_project_list_shows_the_members_projects(demo):
         "not a member of any project"
         in signed_in("otto.outside").get("/app/projects/").content.decode()
     )
+
+
+def test_overview_and_bars_measure_against_the_current_baseline(
+    demo, django_user_model
+):
+    """A baseline captured from version 1; a critical activity then takes three
+    working days more and version 2 is published: the overview says +3 working
+    days against the baseline, and every bar carries its baseline dates."""
+    from rest_framework.test import APIClient
+
+    from scheduling.baselines import baseline_capture
+    from tests.report.conftest import publish
+
+    publish(demo)
+    scheduler = django_user_model.objects.get(username="demo-scheduler")
+    base = baseline_capture(project=demo, user=scheduler, name="Contract")
+    api = APIClient()
+    api.force_authenticate(scheduler)
+    where = f"/api/v1/projects/{demo.pk}/activities/"
+    row = next(
+        a
+        for a in api.get(where, {"page_size": 500}).json()["results"]
+        if a["key"] == "CLEAN"
+    )
+    patched = api.patch(
+        f"{where}{row['id']}/",
+        {"duration": row["duration"] + 3},
+        format="json",
+        HTTP_IF_MATCH=f'"{row["version"]}"',
+    )
+    assert patched.status_code == 200, patched.content
+    publish(demo)
+
+    client = signed_in("demo-owner")
+    overview = client.get(page(demo, "")).content.decode()
+    card = re.search(r'data-figure="baseline">(.*?)</div>\s*</div>', overview, re.S)
+    assert card and "+3 working days" in card.group(1), overview
+    assert "Contract" in card.group(1) and base.finish.isoformat() in card.group(1)
+    bars = client.get(page(demo, "bars?group=none")).content.decode()
+    starts = re.findall(r'data-baseline-start="([\d-]+)"', bars)
+    assert len(starts) == len(base.activities)
+    assert sorted(starts) == sorted(a["start"] for a in base.activities.values())
+    assert "baseline dates" in bars
