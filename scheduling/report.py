@@ -179,7 +179,6 @@ class _Report:
         self.rows = {a["key"]: a for a in self.network["activities"]}
         self.fc = {a["key"]: a for a in self.forecast["activities"]}
         self.data_date = project.data_date or project.start
-        self.finish = dt.date.fromisoformat(self.forecast["project"]["finish"])
         self.previous = (
             ScheduleVersion.objects.filter(
                 project=project, data_date__lt=self.data_date
@@ -188,11 +187,13 @@ class _Report:
             .only("number", "data_date", "finish", "published_at")
             .first()
         )
+        self.plan, self.plan_source = self._plan()
+        self.basis, self.dates, self.path = self._forecast_dates()
+        self.finish = dt.date.fromisoformat(self.basis["finish"])
         dates = [project.start, self.data_date, self.finish]
         if baseline is not None:
             dates += [baseline.start, baseline.finish]
         self.days = workdays_for(self.network, dates)
-        self.plan, self.plan_source = self._plan()
 
     # -- helpers ---------------------------------------------------------
 
@@ -220,6 +221,50 @@ class _Report:
             "version": None,
             "levelled": False,
         }
+
+    def _forecast_dates(
+        self,
+    ) -> tuple[dict[str, Any], dict[str, dict[str, Any]], list[dict[str, Any]]]:
+        """The forecast the report measures: the levelled dates of the latest
+        published version when it is levelled and was computed from the
+        current network and data date (crews respected, crew-aware float);
+        else the critical path of the current network and progress, which
+        ignores crew limits. Per activity: start, finish, total float and
+        whether it is critical; and the driving path as published."""
+        if self.plan_source.get("levelled") and self.latest is not None:
+            doc = self.latest.document
+            dates = {
+                a["key"]: {
+                    "start": a["start"],
+                    "finish": a["finish"],
+                    "total_float": a.get("level_total_float", a["total_float"]),
+                    "critical": bool(a.get("level_critical", a["critical"])),
+                }
+                for a in doc["activities"]
+            }
+            basis = {
+                "basis": "levelled",
+                "version": self.latest.number,
+                "finish": doc["levelling"]["finish"],
+                "critical_path_finish": self.forecast["project"]["finish"],
+            }
+            return basis, dates, doc["levelling"]["critical_path"]
+        dates = {
+            a["key"]: {
+                "start": a["early_start"],
+                "finish": a["early_finish"],
+                "total_float": a["total_float"],
+                "critical": a["total_float"] <= 0,
+            }
+            for a in self.forecast["activities"]
+        }
+        basis = {
+            "basis": "critical_path",
+            "version": None,
+            "finish": self.forecast["project"]["finish"],
+            "critical_path_finish": self.forecast["project"]["finish"],
+        }
+        return basis, dates, self.forecast.get("critical_path", [])
 
     def done(self, key: str) -> float:
         row = self.rows[key]
@@ -284,18 +329,18 @@ class _Report:
         prev = self.previous.finish if self.previous else None
         to_base = self.wd(base, self.finish)
         path = []
-        for step in self.forecast.get("critical_path", []):
+        for step in self.path:
             key = step["key"]
-            fc = self.fc.get(key, {})
+            fc = self.dates.get(key, {})
             was = (self.baseline.activities.get(key) if self.baseline else None) or {}
-            finish = _day(fc.get("early_finish"))
+            finish = _day(fc.get("finish"))
             path.append(
                 {
                     "key": key,
                     "name": step.get("name", ""),
-                    "status": fc.get("status", "not_started"),
-                    "start": fc.get("early_start"),
-                    "finish": fc.get("early_finish"),
+                    "status": self.status(key),
+                    "start": fc.get("start"),
+                    "finish": fc.get("finish"),
                     "baseline_finish": was.get("finish"),
                     "finish_variance": self.wd(_day(was.get("finish")), finish),
                     "driver": step.get("driver"),
@@ -303,6 +348,9 @@ class _Report:
             )
         return {
             "forecast": _iso(self.finish),
+            "forecast_basis": self.basis["basis"],
+            "forecast_version": self.basis["version"],
+            "critical_path_finish": self.basis["critical_path_finish"],
             "baseline": _iso(base),
             "previous_report": _iso(prev),
             "published": _iso(self.latest.finish) if self.latest else None,
@@ -528,17 +576,17 @@ class _Report:
         for key, row in self.rows.items():
             if row["duration"] != 0:
                 continue
-            fc = self.fc.get(key, {})
+            fc = self.dates.get(key, {})
             was = acts.get(key) or {}
             actual = row.get("actual_finish") or row.get("actual_start")
-            forecast = _day(actual or fc.get("early_finish"))
+            forecast = _day(actual or fc.get("finish"))
             variance = self.wd(_day(was.get("finish")), forecast)
             out.append(
                 {
                     "key": key,
                     "name": row.get("name", ""),
                     "baseline": was.get("finish"),
-                    "forecast": fc.get("early_finish"),
+                    "forecast": fc.get("finish"),
                     "actual": actual,
                     "variance": variance,
                     "slipped": bool(variance and variance > 0),
@@ -556,19 +604,21 @@ class _Report:
 
     def _critical(self) -> dict[str, Any]:
         rows = []
-        for a in self.forecast["activities"]:
-            if a.get("status") == "finished" or a["total_float"] > self.threshold:
+        for key, a in self.dates.items():
+            status = self.status(key)
+            if status == "finished" or a["total_float"] > self.threshold:
                 continue
+            row = self.rows.get(key, {})
             rows.append(
                 {
-                    "key": a["key"],
-                    "name": a.get("name", ""),
-                    "start": a["early_start"],
-                    "finish": a["early_finish"],
-                    "duration": a["duration"],
+                    "key": key,
+                    "name": row.get("name", ""),
+                    "start": a["start"],
+                    "finish": a["finish"],
+                    "duration": row.get("duration", 0),
                     "total_float": a["total_float"],
-                    "critical": a["total_float"] <= 0,
-                    "status": a.get("status", "not_started"),
+                    "critical": a["critical"],
+                    "status": status,
                 }
             )
         rows.sort(key=lambda r: (r["start"], r["finish"], r["key"]))
@@ -613,7 +663,7 @@ class _Report:
                     {
                         **entry,
                         "baseline_start": was["start"],
-                        "forecast_start": self.fc.get(key, {}).get("early_start"),
+                        "forecast_start": self.dates.get(key, {}).get("start"),
                         "days_late": self.wd(b_s, self.data_date),
                     }
                 )
@@ -622,7 +672,7 @@ class _Report:
                     {
                         **entry,
                         "baseline_finish": was["finish"],
-                        "forecast_finish": self.fc.get(key, {}).get("early_finish"),
+                        "forecast_finish": self.dates.get(key, {}).get("finish"),
                         "days_late": self.wd(
                             b_f + dt.timedelta(days=1), self.data_date
                         ),

@@ -580,6 +580,18 @@ def report_pdf(report: dict[str, Any]) -> bytes:
         [45, 45, 30, 45, 30, 55],
     )  # fmt: skip
     pdf.ln(1)
+    if fin["forecast_basis"] == "levelled":
+        basis = (
+            f"The forecast is the levelled schedule of version "
+            f"{fin['forecast_version']}: every crew within its capacity (the "
+            f"critical path alone would finish {fin['critical_path_finish']})."
+        )
+    else:
+        basis = (
+            "The forecast is the critical path of the current network and "
+            "progress: crew limits are not applied until the next levelling."
+        )
+    pdf.note(basis)
     pdf.note("Why: " + fin["reason"])
 
     pdf.heading("Progress, earned value and earned schedule")

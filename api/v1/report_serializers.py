@@ -150,6 +150,19 @@ class PathStepOut(S.Serializer):
 
 class FinishOut(S.Serializer):
     forecast = S.DateField()
+    forecast_basis = S.ChoiceField(
+        choices=["levelled", "critical_path"],
+        help_text="levelled: the dates of the latest published levelled version, "
+        "computed from the current network and data date; critical_path: the "
+        "critical path of the current network and progress (crew limits not "
+        "applied)",
+    )
+    forecast_version = S.IntegerField(
+        allow_null=True, help_text="the published version a levelled forecast is"
+    )
+    critical_path_finish = S.DateField(
+        help_text="the finish of the critical path alone, crews not levelled"
+    )
     baseline = S.DateField(allow_null=True)
     previous_report = S.DateField(allow_null=True)
     published = S.DateField(allow_null=True)
