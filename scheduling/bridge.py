@@ -26,7 +26,10 @@ def _date(value: Any) -> str | None:
 
 
 def network_document(
-    project: Project, *, states: dict[int, Any] | None = None
+    project: Project,
+    *,
+    states: dict[int, Any] | None = None,
+    only: Activity | None = None,
 ) -> dict[str, Any]:
     """The project's network as a document; entries in the order they were made.
 
@@ -34,7 +37,10 @@ def network_document(
     ``actual_finish``, ``percent_complete``, ``remaining``: only those set), and
     the project its ``out_of_sequence`` treatment when it is not the default
     ``retained_logic``. ``states`` (activity id → progress state) replaces the
-    recorded progress, for checking an entry before it is stored.
+    recorded progress, for checking an entry before it is stored. ``only``
+    keeps that one activity and no relations: the engine's checks of an
+    activity's own fields and progress, at a cost that does not grow with the
+    network.
     """
     if states is None:
         from .progress_entries import progress_states_get
@@ -43,8 +49,9 @@ def network_document(
     calendars = list(project.calendars.order_by("id"))
     cal_key = {c.id: c.key for c in calendars}
     default_cal = cal_key.get(project.calendar_id)
-    activities = list(project.activities.order_by("id"))
+    activities = [only] if only is not None else list(project.activities.order_by("id"))
     act_key = {a.id: a.key for a in activities}
+    relations = [] if only is not None else project.relations.order_by("id")
     head: dict[str, Any] = {
         "name": project.name,
         "start": _date(project.start),
@@ -103,7 +110,7 @@ def network_document(
                 "lag": r.lag,
                 "lag_unit": r.lag_unit,
             }
-            for r in project.relations.order_by("id")
+            for r in relations
         ],
     }
 

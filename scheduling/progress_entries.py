@@ -608,20 +608,21 @@ def _check_rules(
 def _check_with_engine(
     project: Project, activity: Activity, after: ProgressState
 ) -> None:
-    """The whole network with the entry applied, checked by the engine; its
-    problems with this activity point at the entry's fields.
+    """The activity with the entry applied, checked by the engine; its
+    problems point at the entry's fields.
 
     The engine's checks of progress are per activity (dates against the data
     date and the project start, finish after start, remaining and percent
-    against the status), so the document carries this activity's progress
-    only: the check costs the same with ten entries or ten thousand.
+    against the status, on the activity's calendar); what involves relations
+    (work out of sequence) is a warning, never a refusal. So the document
+    holds the project, its calendars and crews and this one activity: the
+    check costs the same with ten activities or ten thousand, ten entries or
+    ten thousand.
     """
     from .bridge import network_document
 
-    document = network_document(project, states={activity.pk: after})
-    index = next(
-        i for i, a in enumerate(document["activities"]) if a["key"] == activity.key
-    )
+    document = network_document(project, states={activity.pk: after}, only=activity)
+    index = 0
     try:
         parse_network(document)
     except NetworkInvalid as exc:
