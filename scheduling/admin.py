@@ -67,8 +67,21 @@ class ComputedScheduleAdmin(admin.ModelAdmin):
     list_display = ["project", "revision", "computed_at"]
 
 
+class ReadOnlyAdmin(admin.ModelAdmin):
+    """Rows that are never changed once stored: staff may only read them."""
+
+    def has_add_permission(self, request):
+        return False
+
+    def has_change_permission(self, request, obj=None):
+        return False
+
+    def has_delete_permission(self, request, obj=None):
+        return False
+
+
 @admin.register(ProgressEntry)
-class ProgressEntryAdmin(admin.ModelAdmin):
+class ProgressEntryAdmin(ReadOnlyAdmin):
     """Progress entries are append-only: staff may read them, never change or
     delete one (a correction is a new entry, made through the API)."""
 
@@ -87,30 +100,12 @@ class ProgressEntryAdmin(admin.ModelAdmin):
     list_filter = ["project", "kind", "delay_reason"]
     search_fields = ["activity_key", "note"]
 
-    def has_add_permission(self, request):
-        return False
-
-    def has_change_permission(self, request, obj=None):
-        return False
-
-    def has_delete_permission(self, request, obj=None):
-        return False
-
 
 @admin.register(Baseline)
-class BaselineAdmin(admin.ModelAdmin):
+class BaselineAdmin(ReadOnlyAdmin):
     """Baselines never change: staff may read them; a scheduler captures one
     and chooses the current one through the API."""
 
     list_display = ["id", "project", "name", "version", "current", "captured_at"]
     list_filter = ["project", "current"]
     search_fields = ["name"]
-
-    def has_add_permission(self, request):
-        return False
-
-    def has_change_permission(self, request, obj=None):
-        return False
-
-    def has_delete_permission(self, request, obj=None):
-        return False
