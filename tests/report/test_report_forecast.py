@@ -5,11 +5,17 @@ from __future__ import annotations
 
 import datetime as dt
 
+import pytest
+
 from scheduling import report, runs, services
 from scheduling.baselines import baseline_capture
 from scheduling.models import ScheduleVersion
 
 from .conftest import publish
+
+# The levelling runs in this process as the worker would run it; its watcher
+# thread has a connection of its own and must see the run: committed rows.
+pytestmark = pytest.mark.django_db(transaction=True)
 
 
 def level_now(project, user) -> ScheduleVersion:
