@@ -137,3 +137,41 @@ def test_owners_follow_a_run_but_cannot_start_one(
     assert page.inner_text("[data-run-field=id]").startswith(str(run.pk))
     assert page.get_attribute("[data-run-bar]", "aria-valuenow") == "0"
     page.close()
+
+
+def test_the_page_says_in_words_why_a_run_was_not_started(
+    browser,  # noqa: F811
+    live_server,
+    demo,
+    broker,  # noqa: F811
+):
+    from scheduling import runs
+    from tests.worker.conftest import free_port
+
+    page = signed_in_page(browser, live_server, f"/app/projects/{demo.pk}/")
+    # Another scheduler's run starts after this page was loaded: 409.
+    other = runs.run_queue(
+        project=demo,
+        user=Membership.objects.get(project=demo, role="scheduler").user,
+        kind="cpm",
+        dispatch=False,
+    )
+    page.click("[data-run-start]")
+    page.wait_for_selector("[data-run-message][data-kind=error]")
+    said = page.inner_text("[data-run-message]")
+    assert said.startswith("Not started:"), said
+    assert f"run {other.pk} of this project is waiting" in said
+    assert Run.objects.filter(project=demo).count() == 1
+    runs.run_cancel(run=other)
+
+    # The work queue cannot be reached: 503, and the page says when to retry.
+    broker(f"redis://127.0.0.1:{free_port()}/0")  # nothing listens there
+    page.click("[data-run-start]")
+    page.wait_for_function(
+        "document.querySelector('[data-run-message]').textContent"
+        ".includes('work queue is down')"
+    )
+    said = page.inner_text("[data-run-message]")
+    assert "nothing was started" in said and "Try again in 30 seconds" in said
+    assert page.locator("[data-run-bar][data-state=working]").count() == 0
+    page.close()
