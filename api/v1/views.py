@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from typing import Any
 
 from django.contrib.auth import authenticate
@@ -63,6 +64,19 @@ class Pages(PageNumberPagination):
     page_size = 100
     page_size_query_param = "page_size"
     max_page_size = 500
+
+
+def paged(request, view, qs: QuerySet, render: Callable[[Any], Any]) -> Response:
+    """One page of ``qs`` (``page``, ``page_size``) in the page envelope, its
+    rows turned into data by ``render(rows)``."""
+    pages = Pages()
+    page = pages.paginate_queryset(qs, request, view=view)
+    return pages.get_paginated_response(render(page))
+
+
+def many(serializer: Any, **context: Any) -> Callable[[Any], Any]:
+    """``render`` for :func:`paged`: the rows through an output serializer."""
+    return lambda rows: serializer(rows, many=True, context=context).data
 
 
 def _ordered(request, qs: QuerySet, section: str) -> QuerySet:
@@ -130,10 +144,12 @@ class ProjectViewSet(viewsets.ViewSet):
             .select_related("calendar")
             .order_by("id")
         )
-        pages = Pages()
-        page = pages.paginate_queryset(qs, request, view=self)
-        out = s.ProjectOut(page, many=True, context={"roles": roles})
-        return pages.get_paginated_response(out.data)
+        return paged(
+            request,
+            self,
+            qs,
+            many(s.ProjectOut, roles=roles),
+        )
 
     @extend_schema(request=s.ProjectIn, responses={201: s.ProjectOut})
     def create(self, request):
@@ -332,9 +348,7 @@ class KeyedViewSet(NestedViewSet):
         project = self.project(write=False)
         qs = self.filtered(request, self.model.objects.filter(project=project))
         qs = _ordered(request, qs, self.section)
-        pages = Pages()
-        page = pages.paginate_queryset(qs, request, view=self)
-        return pages.get_paginated_response(self.out(project, page, many=True))
+        return paged(request, self, qs, lambda page: self.out(project, page, many=True))
 
     def retrieve(self, request, project_pk=None, pk=None):
         project = self.project(write=False)
@@ -500,9 +514,7 @@ class RelationViewSet(CsvActions, NestedViewSet):
             key = request.query_params["activity"]
             qs = qs.filter(pred__key=key) | qs.filter(succ__key=key)
         qs = _ordered(request, qs, "relations")
-        pages = Pages()
-        page = pages.paginate_queryset(qs, request, view=self)
-        return pages.get_paginated_response(s.RelationOut(page, many=True).data)
+        return paged(request, self, qs, many(s.RelationOut))
 
     def retrieve(self, request, project_pk=None, pk=None):
         row = self._row(self.project(write=False), pk)
@@ -569,9 +581,7 @@ class MemberViewSet(NestedViewSet):
     def list(self, request, project_pk=None):
         project = self.project(write=False)
         qs = project.members.select_related("user").order_by("id")
-        pages = Pages()
-        page = pages.paginate_queryset(qs, request, view=self)
-        return pages.get_paginated_response(s.MemberOut(page, many=True).data)
+        return paged(request, self, qs, many(s.MemberOut))
 
     def create(self, request, project_pk=None):
         project = self.project(write=True)
@@ -625,9 +635,7 @@ class RunViewSet(NestedViewSet):
     def list(self, request, project_pk=None):
         project = self.project(write=False)
         qs = self._runs(project).order_by("-id")
-        pages = Pages()
-        page = pages.paginate_queryset(qs, request, view=self)
-        return pages.get_paginated_response(s.RunOut(page, many=True).data)
+        return paged(request, self, qs, many(s.RunOut))
 
     def retrieve(self, request, project_pk=None, pk=None):
         project = self.project(write=False)
@@ -674,9 +682,7 @@ class VersionViewSet(NestedViewSet):
     def list(self, request, project_pk=None):
         project = self.project(write=False)
         qs = services.versions_list(project=project)
-        pages = Pages()
-        page = pages.paginate_queryset(qs, request, view=self)
-        return pages.get_paginated_response(s.VersionOut(page, many=True).data)
+        return paged(request, self, qs, many(s.VersionOut))
 
     def retrieve(self, request, project_pk=None, number=None):
         project = self.project(write=False)
@@ -724,9 +730,7 @@ class ProgressViewSet(NestedViewSet):
         qs = progress_entries.progress_list(
             project=project, activity=request.query_params.get("activity")
         )
-        pages = Pages()
-        page = pages.paginate_queryset(qs, request, view=self)
-        return pages.get_paginated_response(s.ProgressEntryOut(page, many=True).data)
+        return paged(request, self, qs, many(s.ProgressEntryOut))
 
     def retrieve(self, request, project_pk=None, pk=None):
         project = self.project(write=False)
@@ -782,9 +786,7 @@ class BaselineViewSet(NestedViewSet):
     def list(self, request, project_pk=None):
         project = self.project(write=False)
         qs = baselines.baselines_list(project=project)
-        pages = Pages()
-        page = pages.paginate_queryset(qs, request, view=self)
-        return pages.get_paginated_response(rs.BaselineOut(page, many=True).data)
+        return paged(request, self, qs, many(rs.BaselineOut))
 
     def retrieve(self, request, project_pk=None, pk=None):
         project = self.project(write=False)
