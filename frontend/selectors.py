@@ -17,7 +17,7 @@ from django.conf import settings
 from scheduling.baselines import baseline_current_get, workdays_for
 from scheduling.bridge import network_document
 from scheduling.engine import SITE_CAUTION
-from scheduling.models import ACTIVE_STATES, Baseline, Membership, Project, Role, Run
+from scheduling.models import ACTIVE_STATES, Baseline, Membership, Project, Run
 from scheduling.services import schedule_get
 
 from . import charts
@@ -168,14 +168,10 @@ def last_run_get(*, project: Project) -> dict[str, Any] | None:
     }
 
 
-def run_panel_get(*, project: Project, user: Any) -> dict[str, Any]:
-    """What the run panel needs: whether this user may start a run (schedulers
-    only, as in the API), the active run to follow, and the limits."""
-    role = (
-        Membership.objects.filter(project=project, user=user)
-        .values_list("role", flat=True)
-        .first()
-    )
+def run_panel_get(*, project: Project, can_start: bool) -> dict[str, Any]:
+    """What the run panel needs: whether this user may start a run (the
+    caller asks the API's role table), the active run to follow, and the
+    limits."""
     active = (
         Run.objects.filter(project=project, state__in=ACTIVE_STATES)
         .order_by("-id")
@@ -183,7 +179,7 @@ def run_panel_get(*, project: Project, user: Any) -> dict[str, Any]:
         .first()
     )
     return {
-        "can_start": role == Role.SCHEDULER,
+        "can_start": can_start,
         "active_run": active,
         "max_seconds": int(settings.SITEPACE_RUN_MAX_SECONDS),
         "default_seconds": 10,

@@ -10,10 +10,9 @@ from django.contrib.auth.decorators import login_required
 from django.middleware.csrf import get_token
 from django.shortcuts import render
 
-from api.v1.access import ACCESS, project_for
+from api.v1.access import may_write, project_for
 from scheduling.engine import SITE_CAUTION
 from scheduling.errors import ServiceError
-from scheduling.models import Membership
 
 from . import site_selectors
 from .views import error_page
@@ -23,11 +22,6 @@ from .views import error_page
 def site(request, project_id):
     try:
         project = project_for(request, project_id, "progress", write=False)
-        role = (
-            Membership.objects.filter(project=project, user=request.user)
-            .values_list("role", flat=True)
-            .first()
-        )
         context = site_selectors.site_page_get(
             project=project, crew=request.GET.get("crew", "")
         )
@@ -40,7 +34,7 @@ def site(request, project_id):
             **context,
             "project": project,
             "page": "site",
-            "can_record": role in ACCESS["progress"][1],
+            "can_record": may_write(request, project, "progress"),
             "site_caution": SITE_CAUTION,
             "csrf": get_token(request),
         },

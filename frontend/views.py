@@ -9,7 +9,7 @@ from django.contrib.auth.decorators import login_required
 from django.shortcuts import render
 from django.utils.safestring import mark_safe
 
-from api.v1.access import project_for
+from api.v1.access import may_write, project_for
 from scheduling.engine import SITE_CAUTION
 from scheduling.errors import ServiceError
 
@@ -74,7 +74,9 @@ def projects(request):
 @_page
 def overview(request, project):
     context = selectors.overview_get(project=project)
-    panel = selectors.run_panel_get(project=project, user=request.user)
+    panel = selectors.run_panel_get(
+        project=project, can_start=may_write(request, project, "runs")
+    )
     return render(
         request,
         "frontend/overview.html",

@@ -59,6 +59,17 @@ def project_for(request, project_id: int | str, area: str, write: bool) -> Proje
     return membership.project
 
 
+def may_write(request, project: Project, area: str) -> bool:
+    """Whether the signed-in user's role on ``project`` may write ``area``
+    (for pages that show or hide a form by the same table the API uses)."""
+    role = (
+        Membership.objects.filter(project=project, user=request.user)
+        .values_list("role", flat=True)
+        .first()
+    )
+    return role in ACCESS[area][1]
+
+
 _TAG = re.compile(r'^\s*(?:W/)?"r?(\d+)"\s*$')
 
 
