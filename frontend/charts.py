@@ -23,7 +23,7 @@ from dataclasses import dataclass, field
 from html import escape
 from typing import Any
 
-from scheduling.engine.calendars import WorkCalendar
+from scheduling.engine.calendars import WorkCalendar, calendars_from_document
 
 from . import look
 
@@ -71,21 +71,8 @@ def is_levelled(schedule: Mapping[str, Any]) -> bool:
 # --- calendars -------------------------------------------------------------
 
 
-def calendars_of(network: Mapping[str, Any]) -> dict[str, WorkCalendar]:
-    """The network document's calendars as engine work calendars, by key."""
-    out = {}
-    for c in network.get("calendars") or []:
-        out[c["key"]] = WorkCalendar.from_names(
-            c["key"],
-            c.get("workdays") or [],
-            [dt.date.fromisoformat(str(h)) for h in c.get("holidays") or []],
-            [dt.date.fromisoformat(str(h)) for h in c.get("extra_workdays") or []],
-        )
-    return out
-
-
 def _default_calendar(network: Mapping[str, Any]) -> WorkCalendar | None:
-    cals = calendars_of(network)
+    cals = calendars_from_document(network)
     key = (network.get("project") or {}).get("calendar")
     if key in cals:
         return cals[key]
@@ -866,7 +853,7 @@ def crew_demand(
     its start to its finish (the checker's rule); milestones and finished work
     load nothing, and started work only from the data date on.
     """
-    cals = calendars_of(network)
+    cals = calendars_from_document(network)
     default = (network.get("project") or {}).get("calendar")
     acts = {a["key"]: a for a in network.get("activities") or []}
     data_date = _d((schedule.get("project") or {}).get("data_date"))
@@ -1059,7 +1046,7 @@ def crew_histograms(
     finish = _d((schedule.get("project") or {}).get("finish"))
     dates += [d for d in (start, finish) if d]
     axis = axis_for(dates, HIST_PX_PER_DAY)
-    cals = calendars_of(network)
+    cals = calendars_from_document(network)
     default = _default_calendar(network)
     crews = []
     shading: dict[str, str] = {}

@@ -15,7 +15,7 @@ from typing import Any
 from django.db import IntegrityError, transaction
 
 from scheduling.engine import Problem
-from scheduling.engine.calendars import WorkCalendar
+from scheduling.engine.calendars import WorkCalendar, calendars_from_document
 from scheduling.engine.earned import Workdays
 
 from .bridge import network_document
@@ -41,14 +41,9 @@ def project_calendar(document: dict[str, Any], key: str | None = None) -> WorkCa
     """The engine calendar named ``key`` (default: the project's) of a network
     document."""
     key = key or document["project"].get("calendar")
-    for c in document["calendars"]:
-        if c["key"] == key:
-            return WorkCalendar.from_names(
-                c["key"],
-                c.get("workdays") or [],
-                [dt.date.fromisoformat(d) for d in c.get("holidays") or []],
-                [dt.date.fromisoformat(d) for d in c.get("extra_workdays") or []],
-            )
+    found = calendars_from_document(document).get(key or "")
+    if found is not None:
+        return found
     # The project's own calendar was deleted since: count plain weekdays.
     return WorkCalendar.from_names("weekdays", ["mon", "tue", "wed", "thu", "fri"])
 

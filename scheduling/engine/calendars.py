@@ -21,8 +21,9 @@ relations on mixed calendars is converted with one gather.
 from __future__ import annotations
 
 import datetime as dt
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
@@ -137,6 +138,20 @@ class CalendarTables:
     def workday(self, cal: int, position: int) -> int:
         """Table day index of the working day at ``position``."""
         return int(self.D[self.d_off[cal] + position])
+
+
+def calendars_from_document(document: Mapping[str, Any]) -> dict[str, WorkCalendar]:
+    """The calendars of a network document the engine has already accepted
+    (a stored project's, a published schedule's), by key; no checks here."""
+    return {
+        c["key"]: WorkCalendar.from_names(
+            c["key"],
+            c.get("workdays") or [],
+            [dt.date.fromisoformat(str(d)) for d in c.get("holidays") or []],
+            [dt.date.fromisoformat(str(d)) for d in c.get("extra_workdays") or []],
+        )
+        for c in document.get("calendars") or []
+    }
 
 
 def days_needed(calendar: WorkCalendar, workdays: int) -> int:
