@@ -64,7 +64,7 @@ BAND_PATTERN = "sp-band"
 #: Mark → what it means, in the words the legends show.
 BAR_MARKS: dict[str, str] = {
     "plan_early": "planned bar: early dates of the critical path",
-    "plan_levelled": "planned bar: levelled dates (crews within capacity)",
+    "plan_levelled": "planned bar: levelled dates",
     "critical": "critical work: striped orange bar, wedge before the key",
     "milestone": "milestone: post and pennant at the start of its day",
     "milestone_critical": "critical milestone: striped pennant",
