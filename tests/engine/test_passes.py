@@ -1,0 +1,196 @@
+"""The compiled serial passes (:mod:`scheduling.engine.passes`) against their
+Python twins in :class:`scheduling.engine.improve.Decoder`.
+
+Both must give the same schedule for the same activity list, tie for tie:
+the serial scheme, the forward-backward improvement (Tormos & Lova, Annals of
+Operations Research 102, 2001) and the start order. Compared on random lists
+over PSPLIB instances (Kolisch & Sprecher, EJOR 96, 1996/97) and over an
+invented one-calendar network with holidays, crew absences, not-before dates,
+work fixed in place and a tight end limit. Every compiled child of the
+genetic search passes the independent checker.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import random
+
+import numpy as np
+import pytest
+
+from scheduling.engine import Crew, build_network, passes
+from scheduling.engine import levelling as lv
+from scheduling.engine.checker import check_schedule
+from scheduling.engine.heuristic import Timeline
+from scheduling.engine.improve import Decoder, _sample, genetic_schedule
+from scheduling.engine.psplib import datasets_dir, load_instance
+
+from .test_levelling import FIVE, START, random_network
+
+pytestmark = pytest.mark.skipif(
+    passes.njit is None, reason="Numba is not installed: nothing is compiled"
+)
+
+
+def flat_network(seed: int, n: int = 30):
+    """An invented fit-out network on one calendar (weekdays with holidays):
+    all four relation types with working-day lags, three crews, one of them
+    away for a week, and two not-before dates."""
+    rng = np.random.default_rng(seed)
+    duration = rng.integers(0, 7, size=n)
+    pairs = set()
+    for k in range(1, n):
+        for _ in range(int(rng.integers(1, 3))):
+            pairs.add((int(rng.integers(max(0, k - 8), k)), k))
+    pairs = sorted(pairs)
+    dem_a, dem_c, dem_u = [], [], []
+    for i in range(n):
+        for k in rng.choice(3, size=int(rng.integers(0, 3)), replace=False):
+            dem_a += [i]
+            dem_c += [int(k)]
+            dem_u += [int(rng.integers(1, 3))]
+    away = ((START + dt.timedelta(days=14), START + dt.timedelta(days=20)),)
+    crews = [
+        Crew("C0", "Drylining gang", 2, 0),
+        Crew("C1", "Electricians", 3, 0, unavailable=away),
+        Crew("C2", "Plasterers", 2, 0),
+    ]
+    not_before = np.full(n, np.iinfo(np.int64).min, dtype=np.int64)
+    not_before[n // 2] = 10
+    not_before[n - 3] = 25
+    return build_network(
+        name=f"flat {seed}",
+        start=START,
+        calendars=[FIVE],
+        keys=[f"F{i}" for i in range(n)],
+        duration=duration,
+        rel_pred=[p for p, _ in pairs],
+        rel_succ=[s for _, s in pairs],
+        rel_type=rng.integers(0, 4, size=len(pairs)),
+        rel_lag=rng.integers(0, 4, size=len(pairs)),
+        not_before=not_before,
+        crews=crews,
+        dem_activity=dem_a,
+        dem_crew=dem_c,
+        dem_units=dem_u,
+    )
+
+
+def _timeline(net, factor: int = 2) -> tuple[Timeline, list[int]]:
+    plan = lv._prepare(net, "shortest", None, None)
+    tl = lv.build_timeline(net, factor * plan.finish_max + 2)
+    late = [
+        tl.pos(tl.cal[i], plan.tl.day(plan.tl.cal[i], plan.ls[i]))
+        for i in range(tl.size)
+    ]
+    return tl, [float(tl.finish_day(i, late[i])) for i in range(tl.size)]
+
+
+def _both(tl: Timeline, limit: int) -> tuple[Decoder, Decoder]:
+    slow, fast = Decoder(tl, limit, compiled=False), Decoder(tl, limit, compiled=True)
+    assert not slow.compiled
+    assert fast.compiled
+    return slow, fast
+
+
+def _agree(tl: Timeline, lft, limit: int, lists: int, seed: int) -> int:
+    """Compare both decoders on ``lists`` random lists; how many fitted."""
+    slow, fast = _both(tl, limit)
+    rng = random.Random(seed)
+    fitted = 0
+    for _ in range(lists):
+        noisy = [x + rng.uniform(-8.0, 8.0) for x in lft]
+        order = _sample(slow, noisy, rng)
+        pos = slow.decode(order)
+        assert fast.decode(order) == pos
+        if pos is None:
+            continue
+        fitted += 1
+        finish = slow.finish_of(pos)
+        assert fast.backward(list(pos), finish) == slow.backward(list(pos), finish)
+        assert fast.forward(list(pos)) == slow.forward(list(pos))
+        assert fast.improve(list(pos)) == slow.improve(list(pos))
+        assert fast.improve(list(pos), 1) == slow.improve(list(pos), 1)
+        assert fast.order_of(pos) == slow.order_of(pos)
+    return fitted
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_compiled_passes_match_python_on_an_invented_network(seed):
+    net = flat_network(seed)
+    tl, lft = _timeline(net)
+    assert _agree(tl, lft, tl.horizon, 40, seed) == 40
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_compiled_passes_match_python_with_fixed_work_and_a_tight_limit(seed):
+    net = flat_network(seed)
+    tl, lft = _timeline(net)
+    dec = Decoder(tl, tl.horizon, compiled=False)
+    first = dec.decode(list(tl.order))
+    assert first is not None
+    # Work under way stays where it is: pin the first two activities placed.
+    for i in sorted(range(tl.size), key=lambda i: first[i])[:2]:
+        tl.pinned[i] = first[i]
+    # A limit a little past the serial finish: some lists no longer fit.
+    limit = dec.finish_of(first) + 1
+    fitted = _agree(tl, lft, limit, 60, seed)
+    assert 0 < fitted < 60
+
+
+@pytest.mark.skipif(
+    not (datasets_dir() / "solutions" / "j30opt.sm").is_file(),
+    reason=f"PSPLIB data set not found at {datasets_dir()}",
+)
+@pytest.mark.parametrize(("size", "group"), [(30, 1), (60, 9), (120, 6)])
+def test_compiled_passes_match_python_on_psplib(size, group):
+    net = load_instance(size, group, 1).network
+    tl, lft = _timeline(net)
+    assert _agree(tl, lft, tl.horizon, 15, group) == 15
+
+
+def test_networks_the_passes_cannot_read_stay_in_python():
+    # Two calendars and calendar-day lags: relations that are no plain
+    # offset between positions.
+    tl, _ = _timeline(random_network(3, capacity=2))
+    assert not Decoder(tl, tl.horizon).compiled
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_compiled_generations_give_checked_schedules(seed):
+    net = flat_network(seed, n=40)
+    tl, lft = _timeline(net)
+    dec = Decoder(tl, tl.horizon)
+    rng = random.Random(seed)
+    parents = [_sample(dec, lft, rng) for _ in range(12)]
+    children = dec.breed(parents, 0.1, 1 << 30, seed)
+    assert children == dec.breed(parents, 0.1, 1 << 30, seed)
+    assert len(children) == 12
+    for order, pos, finish in children:
+        assert sorted(order) == list(range(tl.size))
+        assert dec.order_of(pos) == order
+        assert finish == dec.finish_of(pos)
+        starts = {net.keys[i]: tl.date(tl.day(tl.cal[i], p)) for i, p in enumerate(pos)}
+        ends = {net.keys[i]: tl.date(tl.finish_day(i, p)) for i, p in enumerate(pos)}
+        assert check_schedule(net, starts, finishes=ends) == []
+    best = min(children, key=lambda c: c[2])
+    got = genetic_schedule(
+        tl,
+        lft,
+        limit=tl.horizon,
+        seeds=[best[1]],
+        population=12,
+        generations=20,
+        seed=seed,
+    )
+    assert got is not None
+    assert got.finish <= best[2]
+    starts = {net.keys[i]: tl.date(tl.day(tl.cal[i], p)) for i, p in enumerate(got.pos)}
+    ends = {net.keys[i]: tl.date(tl.finish_day(i, p)) for i, p in enumerate(got.pos)}
+    assert check_schedule(net, starts, finishes=ends) == []
+
+
+def test_warm_up_compiles_every_pass():
+    passes.warm_up()
+    for fn in (passes.decode, passes.improve, passes.order_of, passes.breed):
+        assert fn.signatures
