@@ -1640,7 +1640,9 @@ def level(
 
     Raises :class:`~.problems.NetworkInvalid` for a network the critical path
     refuses, :class:`LevellingInfeasible` when no schedule can meet the crews
-    and limits (each problem names the activity and the crew or date), and
+    and limits (each problem names the activity and the crew or date), or
+    when under a ``finish`` limit neither the solver in its time nor the
+    priority rules found one (the problem points at ``/finish``), and
     :class:`ScheduleRejected` if a schedule fails the independent check.
     """
     if GENETIC and len(network.keys) >= GENETIC_MIN_ACTIVITIES:
@@ -1790,13 +1792,12 @@ def level(
     message = ""
     if first.pos is None:
         status = "no_solution_in_time"
+        if hint is None and plan.limit is not None:
+            # Nothing in hand meets the finish limit, and a schedule past it
+            # is no answer to a caller who set it.
+            raise LevellingInfeasible([_none_by_limit(plan, time_limit)])
         pos = hint if hint is not None else _any_schedule(plan)
         message = "the solver found no schedule in time; this is the heuristic's"
-        if (
-            plan.limit is not None
-            and max(tl.finish_day(i, pos[i]) for i in range(tl.size)) > plan.limit
-        ):
-            message += ", and it finishes after the limit"
     else:
         status = "optimal" if first.status == cp.OPTIMAL else "feasible"
         pos = first.pos
@@ -1986,6 +1987,20 @@ def _any_schedule(plan: _Plan) -> list[int]:
         if cap > MAX_HORIZON_DAYS:
             raise LevellingInfeasible([_no_schedule(plan)])
         cap *= 2
+
+
+def _none_by_limit(plan: _Plan, time_limit: float) -> Problem:
+    net = plan.network
+    assert plan.limit is not None
+    limit = net.start + dt.timedelta(days=plan.limit)
+    return Problem(
+        "/finish",
+        "no_schedule_by_finish_in_time",
+        f"no schedule that keeps every crew within its capacity and finishes by "
+        f"{limit} was found in {time_limit:g} s, and the priority rules find "
+        f"none either; give the solver more time or a later finish (the logic "
+        f"alone finishes {net.start + dt.timedelta(days=plan.logic_finish)})",
+    )
 
 
 def _no_schedule(plan: _Plan) -> Problem:

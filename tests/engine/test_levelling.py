@@ -410,6 +410,23 @@ def test_unknown_status_returns_the_heuristic_schedule(monkeypatch):
     assert_checked(net, result)
 
 
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_a_finish_limit_nothing_met_in_time_is_a_clear_error(monkeypatch, seed):
+    # Single crews and a limit on the logic's own finish: the priority rules
+    # find no schedule by then, and the solver (made to find nothing) neither.
+    net = random_network(seed, capacity=1)
+    plan = lv._prepare(net, "shortest", None, None)
+    assert plan.heuristic is not None and plan.heuristic.finish > plan.logic_finish
+    limit = net.start + dt.timedelta(days=plan.logic_finish)
+    monkeypatch.setattr(lv, "solve", _status_only(cp.UNKNOWN))
+    with pytest.raises(LevellingInfeasible) as err:
+        level(net, time_limit=1, finish=limit)
+    (problem,) = err.value.problems
+    assert problem.pointer == "/finish"
+    assert problem.code == "no_schedule_by_finish_in_time"
+    assert str(limit) in problem.message
+
+
 def test_feasible_is_reported_feasible_with_its_gap(monkeypatch):
     real = lv.solve
 
