@@ -1059,7 +1059,7 @@ def _parameters(
         params.subsolvers.append("no_lp")
     params.use_hard_precedences_in_cumulative = True
     params.exploit_all_precedences = True
-    for key, value in PHASE_OPTIONS.get(phase, {}).items():
+    for key, value in (PHASE_OPTIONS.get(phase, {}) if workers <= 2 else {}).items():
         field_ = getattr(params, key)
         if isinstance(value, list):
             field_.clear()
@@ -1068,7 +1068,16 @@ def _parameters(
             setattr(params, key, value)
 
 
-PHASE_OPTIONS: dict[str, dict[str, object]] = {}
+#: Settings for one phase over :func:`_parameters`' own, on two workers or
+#: fewer (more keep CP-SAT's own mix). The improvement
+#: phase, which starts from the genetic search's schedule, runs one search
+#: with the linear relaxation beside one without: on the hardest PSPLIB J60
+#: instances (groups 9, 13, 25, 29, 45; 10 s, 2 workers, seeds 0-2) it
+#: reached 114, 114, 115 on j6025_1 (best known 114) against 115, 116, 117,
+#: and nothing worse elsewhere.
+PHASE_OPTIONS: dict[str, dict[str, object]] = {
+    "improvement": {"subsolvers": ["default_lp", "no_lp"]},
+}
 
 
 def solve(
@@ -1858,10 +1867,13 @@ PROBE_MAX = 1.0
 GENETIC_SHARE = 0.6
 SIDE_SOLVE = True
 #: Generations of the genetic search: a cap well above what the time allows
-#: (the wall limit ends it), with the population of 100 found best on the
-#: hard PSPLIB J60/J120 instances in 5 s runs (40 converged too early).
+#: (the wall limit ends it). Compiled, the search makes 8,000-20,000
+#: schedules a second; a population of 40 or 100 then converges within a
+#: second. 250 did best on the hardest PSPLIB instances in 3-4 s runs: J120
+#: groups 6, 11, 26, 31, 36, 51 at 148, 179, 173, 205, 218, 212 against
+#: 152, 179, 176, 205, 220, 217 with 100, and J60 no worse.
 GENETIC_GENERATIONS = 1 << 20
-GENETIC_POPULATION = 100
+GENETIC_POPULATION = 250
 #: Forward-backward rounds per schedule of the genetic search.
 GENETIC_ROUNDS = 1 << 30
 GENETIC = True
