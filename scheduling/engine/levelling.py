@@ -1069,9 +1069,9 @@ def _parameters(
 
 
 #: Settings for one phase over :func:`_parameters`' own, on two workers or
-#: fewer (more keep CP-SAT's own mix). The improvement
-#: phase, which starts from the genetic search's schedule, runs one search
-#: with the linear relaxation beside one without: on the hardest PSPLIB J60
+#: fewer (more keep CP-SAT's own mix). The improvement phase, which starts
+#: from the genetic search's schedule, runs one search with the linear
+#: relaxation beside one without: on the hardest PSPLIB J60
 #: instances (groups 9, 13, 25, 29, 45; 10 s, 2 workers, seeds 0-2) it
 #: reached 114, 114, 115 on j6025_1 (best known 114) against 115, 116, 117,
 #: and nothing worse elsewhere.
@@ -1654,7 +1654,7 @@ def level(
     priority rules found one (the problem points at ``/finish``), and
     :class:`ScheduleRejected` if a schedule fails the independent check.
     """
-    if GENETIC and len(network.keys) >= GENETIC_MIN_ACTIVITIES:
+    if GENETIC and GENETIC_MIN_ACTIVITIES <= network.size <= GENETIC_MAX_ACTIVITIES:
         # Compile the genetic search's passes before the clock starts (once
         # per process; from the disk cache after the first time).
         passes.warm_up()
@@ -1703,7 +1703,7 @@ def level(
         # first solve's schedule — then CP-SAT on all workers from the better
         # of the two, with the rest of the goal time.
         rest = goal_time - (time.perf_counter() - goal_started)
-        side_time = rest * GENETIC_SHARE
+        side_time = min(rest * GENETIC_SHARE, GENETIC_MAX_SECONDS)
         seeds = [p for p in (hint, first.pos) if p is not None]
         side: list[_Solved | BaseException] = []
 
@@ -1865,6 +1865,12 @@ PROBE_MAX = 1.0
 #: the first solve; with two workers or more, CP-SAT runs beside it on all
 #: but one (SIDE_SOLVE).
 GENETIC_SHARE = 0.6
+#: ... and at most this many seconds: the compiled search settles within a
+#: few seconds (PSPLIB J60 groups 9, 25, 45: the same finish after 1, 3, 5
+#: and 20 s), and CP-SAT's neighbourhood searches from its schedule make
+#: better use of a long limit (j609_1: 88 in 10 s, 87 in a 40 s run that
+#: gave the search a tenth of the time).
+GENETIC_MAX_SECONDS = 6.0
 SIDE_SOLVE = True
 #: Generations of the genetic search: a cap well above what the time allows
 #: (the wall limit ends it). Compiled, the search makes 8,000-20,000
