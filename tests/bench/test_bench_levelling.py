@@ -14,8 +14,8 @@ All solves use 2 workers and a 10 s limit per instance unless said otherwise.
   deviation from the best known makespans (``j60hrs.sm``, ``j120hrs.sm``) and
   from the critical-path bound, beside the serial heuristic alone (targets:
   J60 ≥ 45/48 at best known; J120 ≤ 2.0 % above best known). The same J120
-  set at 60 s per instance (target ≤ 1.0 %) takes about an hour and runs only
-  with ``SITEPACE_BENCH_LONG=1``: ``-k j120_60s``.
+  set at 60 s per instance (target ≤ 1.0 %) takes about 35 minutes and runs
+  only with ``SITEPACE_BENCH_LONG=1``: ``-k j120_60s``.
 * A generated project of 2,000 activities and 15 crews on two calendars:
   feasible within 60 s; gap and peak memory.
 """
@@ -145,7 +145,7 @@ def test_j120_first_of_each_group_against_best_known():
 @needs_data
 @pytest.mark.skipif(
     os.environ.get("SITEPACE_BENCH_LONG") != "1",
-    reason="about an hour: set SITEPACE_BENCH_LONG=1 (and select -k j120_60s)",
+    reason="about 35 minutes: set SITEPACE_BENCH_LONG=1 (and select -k j120_60s)",
 )
 def test_j120_60s_first_of_each_group_against_best_known():
     _, deviation = _summary(
