@@ -141,6 +141,121 @@ def test_missing_file_exits_2():
     assert "cannot read no/such/file.json" in out.stderr
 
 
+#: An invented two-crew yard store: one mason and one joiner. The walls both
+#: need the mason, so levelling must put them one after the other.
+CREWED = {
+    "format": "sitepace.network/1",
+    "project": {"name": "Yard store", "start": "2027-03-01", "calendar": "weekdays"},
+    "calendars": [
+        {"key": "weekdays", "workdays": ["mon", "tue", "wed", "thu", "fri"]},
+        {"key": "sixday", "workdays": ["mon", "tue", "wed", "thu", "fri", "sat"]},
+    ],
+    "crews": [
+        {"key": "masons", "name": "Mason", "capacity": 1, "calendar": "sixday"},
+        {"key": "joiners", "name": "Joiner", "capacity": 1, "calendar": "weekdays"},
+    ],
+    "activities": [
+        {
+            "key": "WALL-N",
+            "duration": 4,
+            "calendar": "sixday",
+            "demands": {"masons": 1},
+        },
+        {
+            "key": "WALL-S",
+            "duration": 3,
+            "calendar": "sixday",
+            "demands": {"masons": 1},
+        },
+        {"key": "DOORS", "duration": 2, "demands": {"joiners": 1}},
+        {"key": "HANDOVER", "duration": 0},
+    ],
+    "relations": [
+        {"pred": "WALL-N", "succ": "DOORS"},
+        {"pred": "DOORS", "succ": "HANDOVER"},
+        {"pred": "WALL-S", "succ": "HANDOVER"},
+    ],
+}
+
+
+def _level(tmp_path, network, *extra):
+    src = tmp_path / "net.json"
+    src.write_text(json.dumps(network))
+    target = tmp_path / "levelled.json"
+    out = manage("schedule", str(src), "--level", "-o", str(target), *extra)
+    return out, (json.loads(target.read_text()) if target.exists() else None)
+
+
+def test_schedule_level_writes_a_levelled_document_and_its_progress(tmp_path):
+    out, doc = _level(tmp_path, CREWED, "--time-limit", "5")
+    assert out.returncode == 0, out.stderr
+    assert doc["format"] == "sitepace.schedule/1"
+    dates = {a["key"]: (a["start"], a["finish"]) for a in doc["activities"]}
+    assert set(dates) == {"WALL-N", "WALL-S", "DOORS", "HANDOVER"}
+    # One mason: the two walls must not share a day (the crew's capacity).
+    (n0, n1), (s0, s1) = dates["WALL-N"], dates["WALL-S"]
+    assert n1 < s0 or s1 < n0
+    # Not a terminal: plain progress lines, then the run's summary.
+    lines = out.stderr.splitlines()
+    assert any(line.startswith("levelling: best finish ") for line in lines)
+    assert "\r" not in out.stderr
+    assert lines[-1].startswith("schedule: optimal, finish ")
+    assert lines[-1].endswith("gap 0.0 %")
+
+
+def test_schedule_level_smooth_keeps_the_critical_path_finish(tmp_path):
+    plain = json.loads(manage("schedule", "-", stdin=json.dumps(CREWED)).stdout)
+    out, doc = _level(tmp_path, CREWED, "--goal", "smooth", "--time-limit", "5")
+    assert out.returncode == 0, out.stderr
+    # By hand: WALL-N Mon 1-Thu 4 March, DOORS Fri 5-Mon 8 (weekdays), the
+    # handover on Tue 9, the critical-path finish. The one mason builds
+    # WALL-S after WALL-N, on his six-day week: Fri 5, Sat 6, Mon 8; that
+    # keeps the finish.
+    assert plain["project"]["finish"] == doc["project"]["finish"] == "2027-03-09"
+    dates = {a["key"]: (a["start"], a["finish"]) for a in doc["activities"]}
+    assert dates["WALL-N"] == ("2027-03-01", "2027-03-04")
+    assert dates["WALL-S"] == ("2027-03-05", "2027-03-08")
+    run = doc["levelling"]
+    assert (run["goal"], run["status"]) == ("smooth", "optimal")
+    assert run["over_capacity"] == {"masons": 0, "joiners": 0}
+    # After levelling the mason, not a relation, drives WALL-S.
+    step = next(s for s in run["critical_path"] if s["key"] == "WALL-S")
+    assert step["driver"] == {"kind": "crew", "pred": "WALL-N", "crew": "masons"}
+
+
+def test_schedule_level_refuses_bad_options_with_exit_2(tmp_path):
+    out, doc = _level(tmp_path, CREWED, "--time-limit", "0")
+    assert out.returncode == 2 and doc is None
+    assert "--time-limit must be between 0 and 3600 seconds" in out.stderr
+    old = tmp_path / "old.json"
+    old.write_text(json.dumps({"activities": [{"name": "no key"}]}))
+    out, doc = _level(tmp_path, CREWED, "--previous", str(old))
+    assert out.returncode == 2 and doc is None
+    assert f"{old} is not a sitepace.schedule/1 document" in out.stderr
+    assert "Traceback" not in out.stderr
+
+
+def test_schedule_level_says_so_before_it_prepares_the_search(tmp_path):
+    """A network the genetic search works on (50 to 400 activities) makes a
+    new process compile its passes first: the command says so before the
+    silence rather than after it."""
+    net = json.loads(json.dumps(CREWED))
+    net["activities"] += [
+        {"key": f"BAY-{i:02d}", "duration": 1 + i % 3, "demands": {"joiners": 1}}
+        for i in range(60)
+    ]
+    net["relations"] += [
+        {"pred": f"BAY-{i:02d}", "succ": f"BAY-{i + 1:02d}", "type": "SS", "lag": 1}
+        for i in range(0, 58, 2)
+    ]
+    out, doc = _level(tmp_path, net, "--time-limit", "3")
+    assert out.returncode == 0, out.stderr
+    lines = out.stderr.splitlines()
+    assert lines[0].startswith("levelling: preparing the search")
+    assert any(line.startswith("levelling: best finish ") for line in lines[1:])
+    assert len(doc["activities"]) == 64
+
+
 def embedded_demo_check(var_dir: Path) -> subprocess.CompletedProcess:
     """``manage.py demo --check`` on the embedded default, as a new user runs
     it: SQLite and the file-system broker under its own folder, a real worker

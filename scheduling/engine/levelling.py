@@ -1614,6 +1614,17 @@ def _move_reasons(tl: Timeline, plan: _Plan, pos: list[int]) -> tuple[Move, ...]
 # The whole run
 
 
+def needs_warm_up(network: Network) -> bool:
+    """True when levelling ``network`` in this process will first compile
+    the genetic search's passes (:func:`.passes.warm_up`: about 15 s once
+    after an install, under a second from the disk cache after that)."""
+    return (
+        GENETIC
+        and GENETIC_MIN_ACTIVITIES <= network.size <= GENETIC_MAX_ACTIVITIES
+        and not passes.is_warm()
+    )
+
+
 def level(
     network: Network,
     *,
@@ -1654,7 +1665,7 @@ def level(
     priority rules found one (the problem points at ``/finish``), and
     :class:`ScheduleRejected` if a schedule fails the independent check.
     """
-    if GENETIC and GENETIC_MIN_ACTIVITIES <= network.size <= GENETIC_MAX_ACTIVITIES:
+    if needs_warm_up(network):
         # Compile the genetic search's passes before the clock starts (once
         # per process; from the disk cache after the first time).
         passes.warm_up()

@@ -604,6 +604,12 @@ def breed(
 _warm = False
 
 
+def is_warm() -> bool:
+    """True once :func:`warm_up` has run in this process (or when there is
+    nothing to compile: Numba absent)."""
+    return _warm or njit is None
+
+
 def warm_up() -> None:
     """Compile every pass (or load it from the cache) on a two-activity
     network, with the argument types the decoder passes, so that the first
@@ -611,7 +617,7 @@ def warm_up() -> None:
     about 15 s the first time after an install or a change here, well under
     a second from the cache."""
     global _warm
-    if _warm or njit is None:
+    if is_warm():
         return
     i64 = np.int64
     dur = np.array([2, 1], dtype=i64)

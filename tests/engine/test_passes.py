@@ -192,5 +192,15 @@ def test_compiled_generations_give_checked_schedules(seed):
 
 def test_warm_up_compiles_every_pass():
     passes.warm_up()
+    assert passes.is_warm()
     for fn in (passes.decode, passes.improve, passes.order_of, passes.breed):
         assert fn.signatures
+
+
+def test_warm_up_is_needed_only_where_the_genetic_search_runs(monkeypatch):
+    monkeypatch.setattr(passes, "_warm", False)
+    small, mid = flat_network(1, n=lv.GENETIC_MIN_ACTIVITIES - 1), flat_network(1, 60)
+    assert not lv.needs_warm_up(small)
+    assert lv.needs_warm_up(mid)
+    monkeypatch.setattr(passes, "_warm", True)
+    assert not lv.needs_warm_up(mid)

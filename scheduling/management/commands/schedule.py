@@ -73,11 +73,20 @@ class Command(BaseCommand):
         if not level:
             document_write(schedule_document(net, result), output, self.stdout)
             return
+        from scheduling.engine import passes
         from scheduling.engine.levelling import level as level_network
+        from scheduling.engine.levelling import needs_warm_up
 
         limit = options["time_limit"]
         if not 0 < limit <= 3600:
             self._fail("schedule: --time-limit must be between 0 and 3600 seconds")
+        if needs_warm_up(net):
+            # Said before the silence, not counted in the time limit.
+            self.stderr.write(
+                "levelling: preparing the search (about 15 s the first time "
+                "after an install, then under a second) ..."
+            )
+            passes.warm_up()
         progress = _ProgressLine(sys.stderr, limit)
         try:
             levelled = level_network(
