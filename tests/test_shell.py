@@ -314,3 +314,27 @@ def test_demo_loads_once_and_its_users_can_sign_in(tmp_path):
     from django.contrib.auth.hashers import check_password
 
     assert check_password(password, hashed)
+
+
+def test_level_progress_is_one_updating_line_on_a_terminal():
+    import datetime as dt
+    import io
+
+    from scheduling.management.commands.schedule import _ProgressLine
+
+    class Terminal(io.StringIO):
+        def isatty(self):
+            return True
+
+    screen = Terminal()
+    line = _ProgressLine(screen, 10)
+    line(dt.date(2027, 5, 3), dt.date(2027, 4, 26), 1.25)
+    line(dt.date(2027, 4, 30), dt.date(2027, 4, 27), 4.5)
+    line.close()
+    text = screen.getvalue()
+    # Each update returns to the start of the line and clears it; one newline
+    # at the end, none between.
+    assert text.count("\r\033[K") == 2 and text.count("\n") == 1
+    assert text.endswith(
+        "\r\033[Klevelling: best finish 2027-04-30  bound 2027-04-27    4.5 s of 10 s\n"
+    )
