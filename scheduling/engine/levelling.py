@@ -1074,7 +1074,10 @@ def _parameters(
 #: relaxation beside one without: on the hardest PSPLIB J60
 #: instances (groups 9, 13, 25, 29, 45; 10 s, 2 workers, seeds 0-2) it
 #: reached 114, 114, 115 on j6025_1 (best known 114) against 115, 116, 117,
-#: and nothing worse elsewhere.
+#: and nothing worse elsewhere. Tried since on groups 9, 13, 25, 29, 41, 45
+#: (seeds 0-1, days over the best known summed; these settings 17):
+#: ``interleave_search`` 18, with both subsolvers 15, ``no_lp`` beside
+#: ``quick_restart_no_lp`` 16, one violation local search 19 — seed noise.
 PHASE_OPTIONS: dict[str, dict[str, object]] = {
     "improvement": {"subsolvers": ["default_lp", "no_lp"]},
 }
