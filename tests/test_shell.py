@@ -1,5 +1,7 @@
 """The Django shell around the engine: health, settings, the command line."""
 
+import datetime as dt
+import io
 import json
 import os
 import subprocess
@@ -8,6 +10,8 @@ from pathlib import Path
 
 import pytest
 from django.conf import settings
+
+from scheduling.management.commands.schedule import _ProgressLine
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -317,11 +321,6 @@ def test_demo_loads_once_and_its_users_can_sign_in(tmp_path):
 
 
 def test_level_progress_is_one_updating_line_on_a_terminal():
-    import datetime as dt
-    import io
-
-    from scheduling.management.commands.schedule import _ProgressLine
-
     class Terminal(io.StringIO):
         def isatty(self):
             return True
