@@ -34,6 +34,20 @@ def test_pages_need_sign_in(demo):
         assert answer["Location"].startswith("/app/login?next=/app/projects/")
 
 
+def test_signing_in_without_a_next_page_lands_on_the_project_list(demo):
+    client = Client()
+    form = client.get("/app/login")
+    assert form.status_code == 200
+    answer = client.post(
+        "/app/login", {"username": "demo-scheduler", "password": PASSWORD}
+    )
+    assert answer.status_code == 302
+    assert answer["Location"] == "/app/projects/"
+    listing = client.get(answer["Location"])
+    assert listing.status_code == 200
+    assert page(demo, "") in listing.content.decode()
+
+
 @pytest.mark.parametrize("user", ["demo-scheduler", "demo-site-manager", "demo-owner"])
 def test_every_member_sees_every_page_with_the_caution(demo, user):
     client = signed_in(user)
