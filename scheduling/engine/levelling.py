@@ -1903,10 +1903,10 @@ SIDE_SOLVE = True
 #: helped the search alone (J60 groups 9, 13, 25, 29, 41, 45, instances 1-3,
 #: 4 s: 26 days over the best known summed, against 33) but not the whole
 #: levelling at 10 s (J60 43, 44, 43 of 48 at the best known against 43;
-#: J120 1.47 % and 1.58 % above it against 1.44 % and 1.48 %). On the search alone,
-#: tournament selection of parents, elitist generational replacement, and
-#: seeding with every solution of the first solve instead of its last did no
-#: better than seed noise.
+#: J120 1.47 % and 1.58 % above it against 1.44 % and 1.48 %). On the
+#: search alone, tournament selection of parents, elitist generational
+#: replacement, and seeding with every solution of the first solve instead of
+#: its last did no better than seed noise.
 GENETIC_GENERATIONS = 1 << 20
 GENETIC_POPULATION = 250
 #: Forward-backward rounds per schedule of the genetic search.
