@@ -1623,15 +1623,11 @@ def _move_reasons(tl: Timeline, plan: _Plan, pos: list[int]) -> tuple[Move, ...]
 # The whole run
 
 
-def needs_warm_up(network: Network) -> bool:
-    """True when levelling ``network`` in this process will first compile
-    the genetic search's passes (:func:`.passes.warm_up`: about 15 s once
-    after an install, under a second from the disk cache after that)."""
-    return (
-        GENETIC
-        and GENETIC_MIN_ACTIVITIES <= network.size <= GENETIC_MAX_ACTIVITIES
-        and not passes.is_warm()
-    )
+def needs_warm_up(network: Network, goal: str = "shortest") -> bool:
+    """True when levelling ``network`` for ``goal`` in this process will first
+    compile the genetic search's passes (:func:`.passes.warm_up`: about 15 s
+    once after an install, under a second from the disk cache after that)."""
+    return _genetic_fits(goal, network.size) and not passes.is_warm()
 
 
 def level(
@@ -1674,7 +1670,7 @@ def level(
     priority rules found one (the problem points at ``/finish``), and
     :class:`ScheduleRejected` if a schedule fails the independent check.
     """
-    if needs_warm_up(network):
+    if needs_warm_up(network, goal):
         # Compile the genetic search's passes before the clock starts (once
         # per process; from the disk cache after the first time).
         passes.warm_up()
@@ -1923,13 +1919,18 @@ GENETIC_MAX_ACTIVITIES = 400
 GENETIC_MIN_ACTIVITIES = 50
 
 
-def _use_genetic(plan: _Plan) -> bool:
+def _genetic_fits(goal: str, size: int) -> bool:
+    """Whether the genetic search takes part for ``goal`` on ``size``
+    activities (the shortest finish only)."""
     return (
         GENETIC
-        and plan.goal == "shortest"
-        and plan.heuristic is not None
-        and GENETIC_MIN_ACTIVITIES <= plan.tl.size <= GENETIC_MAX_ACTIVITIES
+        and goal == "shortest"
+        and GENETIC_MIN_ACTIVITIES <= size <= GENETIC_MAX_ACTIVITIES
     )
+
+
+def _use_genetic(plan: _Plan) -> bool:
+    return plan.heuristic is not None and _genetic_fits(plan.goal, plan.tl.size)
 
 
 def _probe_time(plan: _Plan, goal_time: float) -> float:

@@ -80,7 +80,7 @@ class Command(BaseCommand):
         limit = options["time_limit"]
         if not 0 < limit <= 3600:
             self._fail("schedule: --time-limit must be between 0 and 3600 seconds")
-        if needs_warm_up(net):
+        if needs_warm_up(net, options["goal"]):
             # Said before the silence, not counted in the time limit.
             self.stderr.write(
                 "levelling: preparing the search (about 15 s the first time "
