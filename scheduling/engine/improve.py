@@ -17,6 +17,10 @@ scheduling", Naval Research Logistics 45, 1998):
 * two-point crossover that keeps the lists precedence-feasible, mutation by
   swapping neighbours that no relation joins, ranking selection over parents
   and children (Hartmann 1998);
+* a schedule already in the population is not taken in again, so that copies
+  of the best do not crowd out the rest (duplicate elimination, a common
+  practice of population searches; without it the population of 250 settled
+  within a second on PSPLIB J60 groups 9, 13, 25, 29 and 45, this machine);
 * every decoded schedule is improved by forward-backward improvement, a
   backward then a forward serial pass in the order of the current finishes and
   starts, repeated while it shortens the schedule (Tormos & Lova, "A
@@ -25,6 +29,15 @@ scheduling", Naval Research Logistics 45, 1998):
   Valls, Ballestín & Quintanilla, "Justification and RCPSP: a technique that
   pays", EJOR 165, 2005), and the individual takes the improved schedule's
   start order as its list (Valls et al. 2005).
+
+After the genetic search, its best schedule goes to a local search
+(:func:`shift_search`) that moves a few activities of its list at a time to
+other places between their predecessors and successors, decodes and improves
+the list, and keeps the result when it finishes no later; so it walks across
+schedules of equal finish until one finishes sooner. On the first instances of
+PSPLIB J60 groups 9, 13, 25, 29, 41 and 45 (5 s each, seeds 0-2, one core),
+the search alone ended 39 days over the best known values summed; without
+copies in the population 29; with the local search for 70 % of the time 23.
 
 Time and relations are those of :class:`.heuristic.Timeline` (positions on
 each activity's calendar, crews on their axes); relations that are linear in
@@ -104,6 +117,8 @@ class Decoder:
                 self.tab_out[p].append((s, r))
         self.n_pred = [len(tl.preds[i]) for i in range(n)]
         self.n_succ = [len(tl.succs[i]) for i in range(n)]
+        self.preds = [[r.pred for r in tl.preds[i]] for i in range(n)]
+        self.succs = [[r.succ for r in tl.succs[i]] for i in range(n)]
         self.pred_set = [
             {r.pred for r in tl.preds[i]} | {r.succ for r in tl.succs[i]}
             for i in range(n)
@@ -611,6 +626,61 @@ def _mutate(dec: Decoder, order: list[int], rate: float, rng: random.Random) -> 
                 order[at], order[at + 1] = b, a
 
 
+def _shift(dec: Decoder, order: list[int], rng: random.Random) -> None:
+    """Move one activity, drawn at random, to a random other place between
+    its last predecessor and its first successor in ``order`` (in place; the
+    list stays precedence-feasible)."""
+    n = len(order)
+    at = rng.randrange(n)
+    i = order[at]
+    where = {x: k for k, x in enumerate(order)}
+    lo = max((where[p] for p in dec.preds[i]), default=-1) + 1
+    hi = min((where[s] for s in dec.succs[i]), default=n)
+    if hi - lo <= 1:
+        return
+    to = rng.randrange(lo, hi - 1)
+    to += to >= at  # its new index: any in [lo, hi) but its own
+    del order[at]
+    order.insert(to, i)
+
+
+def shift_search(
+    dec: Decoder,
+    pos: list[int],
+    finish: int,
+    rng: random.Random,
+    *,
+    steps: int,
+    moves: int = 6,
+    rounds: int = 1 << 30,
+    done: Callable[[int], bool] | None = None,
+) -> tuple[list[int], int]:
+    """Local search on one schedule: each step moves one to ``moves``
+    activities of the current list (:func:`_shift`), decodes and improves the
+    list, and takes the result when it finishes no later than the current
+    schedule, so that the search also walks across schedules of equal finish.
+    Returns the best schedule found and its finish day after ``steps`` steps,
+    or sooner when ``done(best finish)`` turns true (asked every 64 steps)."""
+    best, best_finish = pos, finish
+    order = dec.order_of(pos)
+    for step in range(steps):
+        if done is not None and step % 64 == 0 and done(best_finish):
+            break
+        child = list(order)
+        for _ in range(rng.randint(1, moves)):
+            _shift(dec, child, rng)
+        got = dec.decode(child)
+        if got is None:
+            continue
+        got, got_finish = dec.improve(got, rounds)
+        if got_finish <= finish:
+            pos, finish = got, got_finish
+            order = dec.order_of(pos)
+            if finish < best_finish:
+                best, best_finish = pos, finish
+    return best, best_finish
+
+
 def genetic_schedule(
     tl: Timeline,
     lft: Sequence[float],
@@ -625,41 +695,65 @@ def genetic_schedule(
     target: int | None = None,
     rounds: int = 1 << 30,
     stop: Callable[[], bool] | None = None,
+    local_steps: int = 0,
+    local_share: float = 0.0,
+    local_moves: int = 6,
 ) -> Schedule | None:
-    """The best schedule the genetic algorithm finds (see the module text).
+    """The best schedule the genetic algorithm finds (see the module text),
+    then improved by :func:`shift_search`.
 
     ``lft``: latest-finish priorities (least first) for the sampling;
     ``seeds``: start positions of feasible schedules already in hand, put
     into the first population (each also as its start order, decoded);
-    ``limit``: the last end instant allowed. Stops after
-    ``generations``, at ``wall_limit`` seconds, or on reaching ``target`` (a
-    finish day no schedule can beat) or when ``stop()`` turns true; ``rounds``
-    caps the forward-backward rounds per schedule. ``None`` when no
-    individual fits the limit.
+    ``limit``: the last end instant allowed. The genetic search stops after
+    ``generations``, at ``(1 - local_share) × wall_limit`` seconds, or on
+    reaching ``target`` (a finish day no schedule can beat) or when
+    ``stop()`` turns true; then the local search takes its best schedule for
+    ``local_steps`` steps of up to ``local_moves`` moves, within the same
+    ``wall_limit``, ``target`` and ``stop()``. ``rounds`` caps the
+    forward-backward rounds per schedule. ``None`` when no individual fits
+    the limit.
+
+    A schedule already in the population is not taken again: without that,
+    copies of the best fill the population within a second and the search
+    stands still.
     """
     started = time.perf_counter()
     rng = random.Random(seed)
     dec = Decoder(tl, limit)
     pool: list[tuple[int, int, list[int], list[int]]] = []
+    seen: set[int] = set()
     born = 0
+    genetic_wall = None if wall_limit is None else wall_limit * (1.0 - local_share)
+
+    def fresh(pos: list[int]) -> bool:
+        key = hash(tuple(pos))
+        if key in seen:
+            return False
+        seen.add(key)
+        return True
 
     def keep(pos: list[int]) -> None:
         nonlocal born
         pos, finish = dec.improve(pos, rounds)
-        born += 1
-        pool.append((finish, born, dec.order_of(pos), pos))
+        if fresh(pos):
+            born += 1
+            pool.append((finish, born, dec.order_of(pos), pos))
 
     def add(order: list[int]) -> None:
         pos = dec.decode(order)
         if pos is not None:
             keep(pos)
 
-    def out_of_time() -> bool:
-        if target is not None and pool and min(pool)[0] <= target:
+    def past(wall: float | None, best: int | None) -> bool:
+        if target is not None and best is not None and best <= target:
             return True
         if stop is not None and stop():
             return True
-        return wall_limit is not None and time.perf_counter() - started > wall_limit
+        return wall is not None and time.perf_counter() - started > wall
+
+    def out_of_time() -> bool:
+        return past(genetic_wall, min(pool)[0] if pool else None)
 
     for pos in seeds:
         keep(list(pos))
@@ -680,8 +774,9 @@ def genetic_schedule(
                 [p[2] for p in parents], mutation, rounds, rng.getrandbits(32)
             )
             for order, pos, finish in mixed:
-                born += 1
-                pool.append((finish, born, order, pos))
+                if fresh(pos):
+                    born += 1
+                    pool.append((finish, born, order, pos))
             pool.sort()
             del pool[population:]
             continue
@@ -697,7 +792,19 @@ def genetic_schedule(
         pool.sort()
         del pool[population:]
     best = min(pool)
-    return Schedule(tuple(best[3]), best[0])
+    pos, finish = best[3], best[0]
+    if local_steps > 0:
+        pos, finish = shift_search(
+            dec,
+            pos,
+            finish,
+            rng,
+            steps=local_steps,
+            moves=local_moves,
+            rounds=rounds,
+            done=lambda got: past(wall_limit, got),
+        )
+    return Schedule(tuple(pos), finish)
 
 
-__all__ = ["Decoder", "genetic_schedule"]
+__all__ = ["Decoder", "genetic_schedule", "shift_search"]

@@ -1877,16 +1877,18 @@ def level(
 #: PROBE_MAX seconds): enough to prove most small networks optimal at once.
 PROBE_SHARE = 0.1
 PROBE_MAX = 1.0
-#: The genetic search may use up to this share of the goal's time left after
-#: the first solve; with two workers or more, CP-SAT runs beside it on all
-#: but one (SIDE_SOLVE).
-GENETIC_SHARE = 0.6
-#: ... and at most this many seconds: the compiled search settles within a
-#: few seconds (PSPLIB J60 groups 9, 25, 45: the same finish after 1, 3, 5
-#: and 20 s), and CP-SAT's neighbourhood searches from its schedule make
-#: better use of a long limit (j609_1: 88 in 10 s, 87 in a 40 s run that
-#: gave the search a tenth of the time).
-GENETIC_MAX_SECONDS = 6.0
+#: The genetic search and the local search after it may use up to this share
+#: of the goal's time left after the first solve; with two workers or more,
+#: CP-SAT runs beside them on all but one (SIDE_SOLVE).
+GENETIC_SHARE = 0.9
+#: ... and at most this many seconds; CP-SAT's neighbourhood searches from
+#: their schedule take the rest of a long limit. With the local search the
+#: share pays: PSPLIB J60, first instances of the 48 groups, 45/48 at the
+#: best known with 0.9 of the time (at most 20 s), where the genetic search
+#: alone settled within a second and had 0.6 (at most 6 s) for 43/48; J120,
+#: first instances of the 60 groups, 0.99 % above the best known against
+#: 1.35-1.48 % (10 s, 2 workers, this machine).
+GENETIC_MAX_SECONDS = 20.0
 SIDE_SOLVE = True
 #: Generations of the genetic search: a cap well above what the time allows
 #: (the wall limit ends it). Compiled, the search makes 8,000-20,000
@@ -1894,20 +1896,26 @@ SIDE_SOLVE = True
 #: second. 250 did best on the hardest PSPLIB instances in 3-4 s runs: J120
 #: groups 6, 11, 26, 31, 36, 51 at 148, 179, 173, 205, 218, 212 against
 #: 152, 179, 176, 205, 220, 217 with 100, and J60 no worse.
-#: Tried since and left out: a shift move (one activity to a random place
-#: between its last predecessor and first successor) in half the children
-#: helped the search alone (J60 groups 9, 13, 25, 29, 41, 45, instances 1-3,
-#: 4 s: 26 days over the best known summed, against 33) but not the whole
-#: levelling at 10 s (J60 43, 44, 43 of 48 at the best known against 43;
-#: J120 1.47 % and 1.58 % above it against 1.44 % and 1.48 %). On the
-#: search alone, tournament selection of parents, elitist generational
-#: replacement, and seeding with every solution of the first solve instead of
-#: its last did no better than seed noise.
+#: Tried and left out: the shift move of the local search in half the
+#: children instead (J60 43, 44, 43 of 48 at the best known against 43;
+#: J120 1.47 % and 1.58 % above it against 1.44 % and 1.48 %, before the
+#: population kept out copies). On the search alone, tournament selection of
+#: parents, elitist generational replacement, seeding with every solution of
+#: the first solve instead of its last, and in the local search taking a
+#: schedule one day longer now and then (with a return to the best after 3,000
+#: steps without gain) did no better than seed noise.
 GENETIC_GENERATIONS = 1 << 20
 GENETIC_POPULATION = 250
 #: Forward-backward rounds per schedule of the genetic search.
 GENETIC_ROUNDS = 1 << 30
 GENETIC = True
+#: After the genetic search, its best schedule goes to the local search of
+#: :func:`.improve.shift_search` for this share of the time (a cap on its
+#: steps well above what the time allows), each step moving one to
+#: LOCAL_MOVES activities.
+LOCAL_SHARE = 0.7
+LOCAL_STEPS = 1 << 40
+LOCAL_MOVES = 6
 
 
 #: Above this many activities the genetic search is left out: one schedule
@@ -1981,6 +1989,9 @@ def _genetic_hint(
         generations=GENETIC_GENERATIONS,
         population=GENETIC_POPULATION,
         rounds=GENETIC_ROUNDS,
+        local_steps=LOCAL_STEPS,
+        local_share=LOCAL_SHARE,
+        local_moves=LOCAL_MOVES,
         seed=seed,
         wall_limit=wall,
         target=target,

@@ -1,6 +1,7 @@
-"""The genetic search of :mod:`scheduling.engine.improve`.
+"""The genetic search of :mod:`scheduling.engine.improve` and the local
+search that follows it.
 
-Every schedule it returns is run through the independent checker on random
+Every schedule they return is run through the independent checker on random
 networks with two calendars, all relation types, working-day and calendar-day
 lags and leads, not-before dates and tight crews. The search follows Hartmann,
 "A competitive genetic algorithm for resource-constrained project scheduling"
@@ -11,12 +12,14 @@ lags and leads, not-before dates and tight crews. The search follows Hartmann,
 
 from __future__ import annotations
 
+import random
+
 import pytest
 
 from scheduling.engine import levelling as lv
 from scheduling.engine.checker import check_schedule
 from scheduling.engine.heuristic import Timeline
-from scheduling.engine.improve import Decoder, genetic_schedule
+from scheduling.engine.improve import Decoder, _shift, genetic_schedule, shift_search
 from scheduling.engine.psplib import datasets_dir, load_instance, load_solutions
 
 from .test_levelling import random_network
@@ -78,6 +81,7 @@ def test_genetic_schedule_is_checked_and_no_longer_than_its_seed(seed):
         seeds=[list(plan.heuristic.pos)],
         population=10,
         generations=5,
+        local_steps=40,
         seed=seed,
     )
     assert got is not None
@@ -112,3 +116,45 @@ def test_genetic_schedule_reaches_the_published_optimum_of_a_j30_instance():
     got = genetic_schedule(tl, lft, limit=tl.horizon, generations=30, seed=0)
     assert got is not None
     assert got.finish == optimum
+
+
+@pytest.mark.parametrize("seed", range(10))
+def test_a_shift_keeps_the_list_precedence_feasible(seed):
+    _, plan = _plan(seed)
+    tl = plan.tl
+    dec = Decoder(tl, tl.horizon)
+    order = dec.order_of(list(plan.heuristic.pos))
+    rng = random.Random(seed)
+    lists = set()
+    for _ in range(300):
+        _shift(dec, order, rng)
+        assert sorted(order) == list(range(tl.size))
+        at = {x: k for k, x in enumerate(order)}
+        assert all(at[r.pred] < at[r.succ] for r in tl.relations)
+        lists.add(tuple(order))
+    # Moves happen, unless no activity of the network can go anywhere else.
+    free = any(
+        max((at[p] for p in dec.preds[i]), default=-1) + 1
+        < min((at[s] for s in dec.succs[i]), default=tl.size) - 1
+        for i in range(tl.size)
+    )
+    assert len(lists) > 1 or not free
+
+
+@pytest.mark.parametrize("seed", range(25))
+def test_shift_search_is_checked_and_never_longer(seed):
+    net, plan = _plan(seed)
+    tl = plan.tl
+    dec = Decoder(tl, tl.horizon)
+    start = list(plan.heuristic.pos)
+    before = dec.finish_of(start)
+    runs = [
+        shift_search(dec, start, before, random.Random(seed), steps=150)
+        for _ in range(2)
+    ]
+    assert runs[0] == runs[1]  # the same seed, the same schedule
+    pos, finish = runs[0]
+    assert finish <= before
+    assert finish == dec.finish_of(pos)
+    starts, finishes = _dates(tl, pos)
+    assert check_schedule(net, starts, finishes=finishes) == []
