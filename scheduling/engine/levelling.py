@@ -1658,10 +1658,11 @@ def level(
     For ``"shortest"`` the goal's time is spent in steps: a short CP-SAT solve
     (:data:`PROBE_SHARE`, at most :data:`PROBE_MAX` seconds), which proves
     most small networks at once; if it does not, the genetic search of
-    :mod:`.improve` (:data:`GENETIC_SHARE` of the rest) with CP-SAT going on
-    beside it on ``workers - 1`` workers; then CP-SAT on all workers from the
-    best schedule so far. ``stats`` lists every solve, and a ``"genetic"`` row
-    whose ``objective`` is the genetic search's finish day.
+    :mod:`.improve` and its local search (:data:`GENETIC_SHARE` of the rest)
+    with CP-SAT going on beside them on ``workers - 1`` workers; then CP-SAT
+    on all workers from the best schedule so far. ``stats`` lists every solve,
+    and a ``"genetic"`` row whose ``objective`` is the finish day of the
+    genetic and local search.
 
     Raises :class:`~.problems.NetworkInvalid` for a network the critical path
     refuses, :class:`LevellingInfeasible` when no schedule can meet the crews
@@ -1714,10 +1715,10 @@ def level(
     )
     stats.append(first.stats)
     if _worth_improving(plan, first):
-        # Not proven in the short first solve: a genetic search for a better
-        # hint — beside it, on the other workers, CP-SAT goes on from the
-        # first solve's schedule — then CP-SAT on all workers from the better
-        # of the two, with the rest of the goal time.
+        # Not proven in the short first solve: a genetic search and a local
+        # search for a better hint — beside them, on the other workers, CP-SAT
+        # goes on from the first solve's schedule — then CP-SAT on all workers
+        # from the better of the two, with the rest of the goal time.
         rest = goal_time - (time.perf_counter() - goal_started)
         side_time = min(rest * GENETIC_SHARE, GENETIC_MAX_SECONDS)
         seeds = [p for p in (hint, first.pos) if p is not None]

@@ -17,6 +17,7 @@ import random
 import pytest
 
 from scheduling.engine import levelling as lv
+from scheduling.engine import passes
 from scheduling.engine.checker import check_schedule
 from scheduling.engine.heuristic import Timeline
 from scheduling.engine.improve import Decoder, _shift, genetic_schedule, shift_search
@@ -157,4 +158,41 @@ def test_shift_search_is_checked_and_never_longer(seed):
     assert finish <= before
     assert finish == dec.finish_of(pos)
     starts, finishes = _dates(tl, pos)
+    assert check_schedule(net, starts, finishes=finishes) == []
+
+
+@pytest.mark.skipif(
+    not (datasets_dir() / "solutions" / "j60hrs.sm").is_file(),
+    reason="PSPLIB data set not found",
+)
+def test_the_local_search_reaches_the_best_known_finish_of_a_j60_instance():
+    # PSPLIB j609_1: best known makespan 87 (j60hrs.sm, Kolisch & Sprecher
+    # 1996/97). Seed 1 of 0-2 (this machine): 40 generations alone end at
+    # 88, 88, 87; followed by 20,000 steps of the local search at 88, 87, 87.
+    if passes.njit is None:
+        pytest.skip("Numba is not installed: too many schedules for the Python passes")
+    inst = load_instance(60, 9, 1)
+    best = load_solutions("j60hrs.sm")[(9, 1)]
+    plan = lv._prepare(inst.network, "shortest", None, None)
+    tl = lv.build_timeline(inst.network, 2 * plan.finish_max)
+    lft = [float(tl.finish_day(i, plan.ls[i])) for i in range(tl.size)]
+    # Every day is a working day in PSPLIB: positions are days on both
+    # timelines, so the heuristic's schedule serves as a seed unchanged.
+    runs = {
+        steps: genetic_schedule(
+            tl,
+            lft,
+            limit=tl.horizon,
+            seeds=[list(plan.heuristic.pos)],
+            population=250,
+            generations=40,
+            local_steps=steps,
+            seed=1,
+        )
+        for steps in (0, 20_000)
+    }
+    assert runs[0].finish == best + 1
+    assert runs[20_000].finish == best
+    net = inst.network
+    starts, finishes = _dates(tl, runs[20_000].pos)
     assert check_schedule(net, starts, finishes=finishes) == []
