@@ -660,11 +660,12 @@ def shift_search(
     list, and takes the result when it finishes no later than the current
     schedule, so that the search also walks across schedules of equal finish.
     Returns the best schedule found and its finish day after ``steps`` steps,
-    or sooner when ``done(best finish)`` turns true (asked every 64 steps)."""
+    or sooner when ``done(best finish)`` turns true (asked before each step:
+    one step on Python passes can take tens of milliseconds)."""
     best, best_finish = pos, finish
     order = dec.order_of(pos)
-    for step in range(steps):
-        if done is not None and step % 64 == 0 and done(best_finish):
+    for _ in range(steps):
+        if done is not None and done(best_finish):
             break
         child = list(order)
         for _ in range(rng.randint(1, moves)):
@@ -714,7 +715,8 @@ def genetic_schedule(
     forward-backward rounds per schedule. ``None`` when no individual fits
     the limit.
 
-    A schedule already in the population is not taken again: without that,
+    A schedule the search has met before is not taken again (a set of
+    hashes of the start positions, a few megabytes in 20 s): without that,
     copies of the best fill the population within a second and the search
     stands still.
     """

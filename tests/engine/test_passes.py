@@ -156,6 +156,20 @@ def test_networks_the_passes_cannot_read_stay_in_python():
     assert not Decoder(tl, tl.horizon).compiled
 
 
+def test_the_search_gets_the_longer_time_only_with_compiled_passes():
+    two_calendars = lv._prepare(random_network(3, capacity=2), "shortest", None, None)
+    one_calendar = lv._prepare(flat_network(0), "shortest", None, None)
+    assert lv._genetic_time(two_calendars) == (
+        lv.PYTHON_GENETIC_SHARE,
+        lv.PYTHON_GENETIC_MAX_SECONDS,
+    )
+    assert lv._genetic_time(one_calendar) == (
+        lv.GENETIC_SHARE,
+        lv.GENETIC_MAX_SECONDS,
+    )
+    assert lv.GENETIC_MAX_SECONDS > lv.PYTHON_GENETIC_MAX_SECONDS
+
+
 @pytest.mark.parametrize("seed", range(4))
 def test_compiled_generations_give_checked_schedules(seed):
     net = flat_network(seed, n=40)
