@@ -1885,11 +1885,13 @@ PROBE_MAX = 1.0
 GENETIC_SHARE = 0.9
 #: ... and at most this many seconds; CP-SAT's neighbourhood searches from
 #: their schedule take the rest of a long limit. With the local search the
-#: share pays: PSPLIB J60, first instances of the 48 groups, 45/48 at the
-#: best known with 0.9 of the time (at most 20 s), where the genetic search
-#: alone settled within a second and had 0.6 (at most 6 s) for 43/48; J120,
-#: first instances of the 60 groups, 0.99 % above the best known against
-#: 1.35-1.48 % (10 s, 2 workers, this machine).
+#: share pays (first instances of the PSPLIB groups, 2 workers, this
+#: machine): J60 44/48 at the best known in two benchmark runs and 45/48 in
+#: a script run, where the genetic search alone settled within a second and
+#: had 0.6 of the time (at most 6 s) for 42-43/48; J120 at 10 s 1.04 % and
+#: 0.99 % above the best known against 1.35-1.48 %, and at 60 s 0.92 %
+#: against 1.27 %. On J60 groups 9, 13, 25, 29, 41 and 45 (seeds 0-1), a
+#: local search of 0.5, 0.7 or 0.85 of this time made no difference.
 GENETIC_MAX_SECONDS = 20.0
 #: The same where the passes run in Python (a network with relations or crews
 #: the compiled passes cannot read, see :mod:`.passes`): a hundred times fewer
