@@ -1651,9 +1651,11 @@ def level(
     seconds for all solves together; ``workers`` and ``seed`` go to CP-SAT.
     ``on_progress(finish, bound, elapsed)`` is called for each better solution
     of the goal solve (``bound`` a date for ``"shortest"``, else ``None``;
-    ``elapsed`` seconds). ``should_stop()``, when given, is asked about five
-    times a second while anything is computed; once it answers true the run
-    ends with :class:`LevellingStopped` (a cancelled run, say).
+    ``elapsed`` seconds since the levelling started); for ``"shortest"``
+    only a sooner finish or a higher bound is news. ``should_stop()``, when
+    given, is asked about five times a second while anything is computed;
+    once it answers true the run ends with :class:`LevellingStopped` (a
+    cancelled run, say).
 
     For ``"shortest"`` the goal's time is spent in steps: a short CP-SAT solve
     (:data:`PROBE_SHARE`, at most :data:`PROBE_MAX` seconds), which proves
@@ -1678,6 +1680,8 @@ def level(
     started = time.perf_counter()
     if goal not in GOALS:
         raise ValueError(f"goal must be one of {', '.join(GOALS)}, got {goal!r}")
+    if on_progress is not None:
+        on_progress = _as_news(on_progress, started, goal == "shortest")
     rw = None
     if network.progress is not None and network.progress.any:
         rw = rewrite(network)
@@ -1873,6 +1877,31 @@ def level(
         pos = left_justify(tl, pos, links)
         links = crew_flow(tl, pos, over)
     return _result(plan, m, pos, links, over, status, first, stats, started, message)
+
+
+def _as_news(report: ProgressFn, started: float, shortest: bool) -> ProgressFn:
+    """``report`` as :func:`level` promises it: the solves run one after
+    another and one beside the genetic search, each reporting on its own
+    clock and from its own best. This passes on the time since ``started``
+    and, for the shortest finish, only news — a sooner finish or a higher
+    bound — with the best finish and highest bound so far."""
+    lock = threading.Lock()
+    best: list[dt.date | None] = [None, None]
+
+    def passed_on(finish: dt.date, bound: dt.date | None, elapsed: float) -> None:
+        with lock:
+            if shortest:
+                old_finish, old_bound = best
+                sooner = old_finish is None or finish < old_finish
+                higher = bound is not None and (old_bound is None or bound > old_bound)
+                if not (sooner or higher):
+                    return
+                best[0] = finish if sooner else old_finish
+                best[1] = bound if higher else old_bound
+                finish, bound = best[0], best[1]  # type: ignore[assignment]
+            report(finish, bound, time.perf_counter() - started)
+
+    return passed_on
 
 
 #: The first goal solve gets this share of the goal's time (at most

@@ -310,6 +310,27 @@ def test_progress_is_reported_for_each_better_solution():
     assert [f for f, _, _ in seen] == sorted((f for f, _, _ in seen), reverse=True)
 
 
+def test_progress_over_several_solves_is_news_on_one_clock():
+    # 150 work packages on four small crews (the worker tests' generated
+    # depot): the first short solve does not prove the finish, so the genetic
+    # search, the solve beside it and the improvement solve all report.
+    from scheduling.engine.document import parse_network
+    from tests.worker.networks import crowded
+
+    seen = []
+    result = level(
+        parse_network(crowded(150, seed=11)),
+        time_limit=10,
+        on_progress=lambda f, b, t: seen.append((f, b, t)),
+    )
+    assert len(seen) >= 2
+    assert seen[-1][0] == result.finish
+    for (f0, b0, t0), (f1, b1, t1) in zip(seen, seen[1:], strict=False):
+        assert t1 >= t0  # one clock: the time since the levelling started
+        assert f1 <= f0 and (b0 is None or (b1 is not None and b1 >= b0))
+        assert f1 < f0 or (b1 != b0)  # each line is news
+
+
 # --- explanations before the solve ----------------------------------------
 
 
