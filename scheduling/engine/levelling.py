@@ -1915,12 +1915,13 @@ GENETIC_SHARE = 0.9
 #: ... and at most this many seconds; CP-SAT's neighbourhood searches from
 #: their schedule take the rest of a long limit. With the local search the
 #: share pays (first instances of the PSPLIB groups, 2 workers, this
-#: machine): J60 44/48 at the best known in two benchmark runs and 45/48 in
-#: a script run, where the genetic search alone settled within a second and
-#: had 0.6 of the time (at most 6 s) for 42-43/48; J120 at 10 s 1.04 % and
-#: 0.99 % above the best known against 1.35-1.48 %, and at 60 s 0.92 %
-#: against 1.27 %. On J60 groups 9, 13, 25, 29, 41 and 45 (seeds 0-1), a
-#: local search of 0.5, 0.7 or 0.85 of this time made no difference.
+#: machine): J60 44, 44 and 45 of 48 at the best known in three benchmark
+#: runs and 45 in a script run, where the genetic search alone settled
+#: within a second and had 0.6 of the time (at most 6 s) for 42-43/48; J120
+#: at 10 s 1.04 % and 0.99 % above the best known against 1.35-1.48 %, and
+#: at 60 s 0.92 % against 1.27 %. On J60 groups 9, 13, 25, 29, 41 and 45
+#: (seeds 0-1), a local search of 0.5, 0.7 or 0.85 of this time made no
+#: difference.
 GENETIC_MAX_SECONDS = 20.0
 #: The same where the passes run in Python (a network with relations or crews
 #: the compiled passes cannot read, see :mod:`.passes`): a hundred times fewer
