@@ -63,13 +63,42 @@ from collections.abc import Callable, Sequence
 import numpy as np
 
 from . import passes
-from .heuristic import Schedule, Timeline
+from .heuristic import Relation, Schedule, Timeline
 
 _INF = 1 << 60
 
 #: Use the compiled passes (:mod:`.passes`) for flat timelines. Off, every
 #: pass runs in Python (the tests compare the two).
 COMPILED = passes.njit is not None
+
+
+def _is_offset(tl: Timeline, r: Relation) -> bool:
+    """Whether relation ``r`` is a fixed offset between positions: both ends
+    on one calendar without a calendar-day lag, or two every-day calendars."""
+    cp, cs = tl.cal[r.pred], tl.cal[r.succ]
+    return (cp == cs and r.cl == 0) or (tl.identity[cp] and tl.identity[cs])
+
+
+def _flat(tl: Timeline) -> bool:
+    """Whether ``tl`` is *flat*: every relation an offset and every crew of a
+    working activity counted on its own calendar's positions (then the
+    passes can run compiled)."""
+    return (
+        tl.size > 0
+        and all(_is_offset(tl, r) for r in tl.relations)
+        and all(
+            tl.axis[k] is not None
+            for i in range(tl.size)
+            if tl.dur[i]
+            for k, _ in tl.demands[i]
+        )
+    )
+
+
+def compiles(tl: Timeline) -> bool:
+    """Whether a :class:`Decoder` on ``tl`` runs its passes compiled, found
+    without building one."""
+    return COMPILED and _flat(tl)
 
 
 class Decoder:
@@ -105,8 +134,7 @@ class Decoder:
         self.tab_out: list[list[tuple[int, object]]] = [[] for _ in range(n)]
         for r in tl.relations:
             p, s = r.pred, r.succ
-            cp, cs = tl.cal[p], tl.cal[s]
-            if (cp == cs and r.cl == 0) or (tl.identity[cp] and tl.identity[cs]):
+            if _is_offset(tl, r):
                 use_end = r.from_end and tl.dur[p] >= 1
                 off = (tl.dur[p] if use_end else 0) + r.cl + r.wl
                 off -= tl.dur[s] if r.to_end else 0
@@ -117,8 +145,6 @@ class Decoder:
                 self.tab_out[p].append((s, r))
         self.n_pred = [len(tl.preds[i]) for i in range(n)]
         self.n_succ = [len(tl.succs[i]) for i in range(n)]
-        self.preds = [[r.pred for r in tl.preds[i]] for i in range(n)]
-        self.succs = [[r.succ for r in tl.succs[i]] for i in range(n)]
         self.pred_set = [
             {r.pred for r in tl.preds[i]} | {r.succ for r in tl.succs[i]}
             for i in range(n)
@@ -140,11 +166,8 @@ class Decoder:
                 for t in range(a, min(b, size)):
                     row[t] -= cap
             self.base.append(row)
-        flat = all(not t for t in self.tab_in) and all(
-            self.plain[i] or not self.need[i] for i in range(n)
-        )
         use = COMPILED if compiled is None else compiled
-        self.compiled = bool(use and flat and n > 0)
+        self.compiled = bool(use and _flat(tl))
         if self.compiled:
             self._arrays()
 
@@ -633,9 +656,9 @@ def _shift(dec: Decoder, order: list[int], rng: random.Random) -> None:
     n = len(order)
     at = rng.randrange(n)
     i = order[at]
-    where = {x: k for k, x in enumerate(order)}
-    lo = max((where[p] for p in dec.preds[i]), default=-1) + 1
-    hi = min((where[s] for s in dec.succs[i]), default=n)
+    tl = dec.tl
+    lo = max((order.index(r.pred, 0, at) for r in tl.preds[i]), default=-1) + 1
+    hi = min((order.index(r.succ, at + 1) for r in tl.succs[i]), default=n)
     if hi - lo <= 1:
         return
     to = rng.randrange(lo, hi - 1)
@@ -809,4 +832,4 @@ def genetic_schedule(
     return Schedule(tuple(pos), finish)
 
 
-__all__ = ["Decoder", "genetic_schedule", "shift_search"]
+__all__ = ["Decoder", "compiles", "genetic_schedule", "shift_search"]

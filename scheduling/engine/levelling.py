@@ -59,7 +59,7 @@ from .heuristic import (
     best_heuristic,
     build_timeline,
 )
-from .improve import Decoder, genetic_schedule
+from .improve import compiles, genetic_schedule
 from .network import NO_DATE, RELATION_TYPES, Network
 from .problems import NetworkInvalid, Problem, pointer
 from .progress import FINISHED, NOT_STARTED, STARTED, Rewrite, rewrite, status_of
@@ -1886,19 +1886,26 @@ def _as_news(report: ProgressFn, started: float, shortest: bool) -> ProgressFn:
     and, for the shortest finish, only news — a sooner finish or a higher
     bound — with the best finish and highest bound so far."""
     lock = threading.Lock()
-    best: list[dt.date | None] = [None, None]
+    best_finish: dt.date | None = None
+    best_bound: dt.date | None = None
 
     def passed_on(finish: dt.date, bound: dt.date | None, elapsed: float) -> None:
+        nonlocal best_finish, best_bound
         with lock:
             if shortest:
-                old_finish, old_bound = best
-                sooner = old_finish is None or finish < old_finish
-                higher = bound is not None and (old_bound is None or bound > old_bound)
+                sooner = best_finish is None or finish < best_finish
+                higher = bound is not None and (
+                    best_bound is None or bound > best_bound
+                )
                 if not (sooner or higher):
                     return
-                best[0] = finish if sooner else old_finish
-                best[1] = bound if higher else old_bound
-                finish, bound = best[0], best[1]  # type: ignore[assignment]
+                if sooner:
+                    best_finish = finish
+                elif best_finish is not None:
+                    finish = best_finish
+                if higher:
+                    best_bound = bound
+                bound = best_bound
             report(finish, bound, time.perf_counter() - started)
 
     return passed_on
@@ -1984,7 +1991,7 @@ def _use_genetic(plan: _Plan) -> bool:
 def _genetic_time(plan: _Plan) -> tuple[float, float]:
     """The share of the goal's time left and the most seconds the genetic
     and local search may take on ``plan``."""
-    if Decoder(plan.tl, plan.tl.horizon).compiled:
+    if compiles(plan.tl):
         return GENETIC_SHARE, GENETIC_MAX_SECONDS
     return PYTHON_GENETIC_SHARE, PYTHON_GENETIC_MAX_SECONDS
 

@@ -33,6 +33,17 @@ def _dates(tl: Timeline, pos):
     return starts, finishes
 
 
+def _psplib(size: int, group: int):
+    """PSPLIB instance ``group``-1 of ``size`` with its plan, a timeline twice
+    its critical-path length and latest-finish priorities on it (every day is
+    a working day in PSPLIB: positions are days on both timelines)."""
+    inst = load_instance(size, group, 1)
+    plan = lv._prepare(inst.network, "shortest", None, None)
+    tl = lv.build_timeline(inst.network, 2 * plan.finish_max)
+    lft = [float(tl.finish_day(i, plan.ls[i])) for i in range(tl.size)]
+    return inst, plan, tl, lft
+
+
 def _plan(seed: int):
     net = random_network(seed, capacity=2)
     return net, lv._prepare(net, "shortest", None, None)
@@ -108,12 +119,8 @@ def test_same_seed_same_schedule():
 )
 def test_genetic_schedule_reaches_the_published_optimum_of_a_j30_instance():
     # PSPLIB j301_1: optimum 43 (j30opt.sm, Kolisch & Sprecher 1996/97).
-    inst = load_instance(30, 1, 1)
     optimum = load_solutions("j30opt.sm")[(1, 1)]
-    plan = lv._prepare(inst.network, "shortest", None, None)
-    tl = lv.build_timeline(inst.network, 2 * plan.finish_max)
-    late = [plan.ls[i] for i in range(tl.size)]
-    lft = [float(tl.finish_day(i, late[i])) for i in range(tl.size)]
+    _, _, tl, lft = _psplib(30, 1)
     got = genetic_schedule(tl, lft, limit=tl.horizon, generations=30, seed=0)
     assert got is not None
     assert got.finish == optimum
@@ -135,8 +142,8 @@ def test_a_shift_keeps_the_list_precedence_feasible(seed):
         lists.add(tuple(order))
     # Moves happen, unless no activity of the network can go anywhere else.
     free = any(
-        max((at[p] for p in dec.preds[i]), default=-1) + 1
-        < min((at[s] for s in dec.succs[i]), default=tl.size) - 1
+        max((at[r.pred] for r in tl.preds[i]), default=-1) + 1
+        < min((at[r.succ] for r in tl.succs[i]), default=tl.size) - 1
         for i in range(tl.size)
     )
     assert len(lists) > 1 or not free
@@ -171,13 +178,8 @@ def test_the_local_search_reaches_the_best_known_finish_of_a_j60_instance():
     # 88, 88, 87; followed by 20,000 steps of the local search at 88, 87, 87.
     if passes.njit is None:
         pytest.skip("Numba is not installed: too many schedules for the Python passes")
-    inst = load_instance(60, 9, 1)
     best = load_solutions("j60hrs.sm")[(9, 1)]
-    plan = lv._prepare(inst.network, "shortest", None, None)
-    tl = lv.build_timeline(inst.network, 2 * plan.finish_max)
-    lft = [float(tl.finish_day(i, plan.ls[i])) for i in range(tl.size)]
-    # Every day is a working day in PSPLIB: positions are days on both
-    # timelines, so the heuristic's schedule serves as a seed unchanged.
+    inst, plan, tl, lft = _psplib(60, 9)
     runs = {
         steps: genetic_schedule(
             tl,
@@ -193,6 +195,5 @@ def test_the_local_search_reaches_the_best_known_finish_of_a_j60_instance():
     }
     assert runs[0].finish == best + 1
     assert runs[20_000].finish == best
-    net = inst.network
     starts, finishes = _dates(tl, runs[20_000].pos)
-    assert check_schedule(net, starts, finishes=finishes) == []
+    assert check_schedule(inst.network, starts, finishes=finishes) == []
