@@ -1922,7 +1922,7 @@ GENETIC_SHARE = 0.9
 #: ... and at most this many seconds; CP-SAT's neighbourhood searches from
 #: their schedule take the rest of a long limit. With the local search the
 #: share pays (first instances of the PSPLIB groups, 2 workers, this
-#: machine): J60 44, 44 and 45 of 48 at the best known in three benchmark
+#: machine): J60 44, 44, 45 and 44 of 48 at the best known in four benchmark
 #: runs and 45 in a script run, where the genetic search alone settled
 #: within a second and had 0.6 of the time (at most 6 s) for 42-43/48; J120
 #: at 10 s 1.04 % and 0.99 % above the best known against 1.35-1.48 %, and
