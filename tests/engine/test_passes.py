@@ -22,7 +22,7 @@ from scheduling.engine import Crew, build_network, passes
 from scheduling.engine import levelling as lv
 from scheduling.engine.checker import check_schedule
 from scheduling.engine.heuristic import Timeline
-from scheduling.engine.improve import Decoder, _sample, genetic_schedule
+from scheduling.engine.improve import Decoder, _sample, genetic_schedule, turns
 from scheduling.engine.psplib import datasets_dir, load_instance
 
 from .test_levelling import FIVE, START, random_network
@@ -32,10 +32,10 @@ pytestmark = pytest.mark.skipif(
 )
 
 
-def flat_network(seed: int, n: int = 30):
+def flat_network(seed: int, n: int = 30, *, dates: bool = True):
     """An invented fit-out network on one calendar (weekdays with holidays):
     all four relation types with working-day lags, three crews, one of them
-    away for a week, and two not-before dates."""
+    away for a week, and two not-before dates (none with ``dates=False``)."""
     rng = np.random.default_rng(seed)
     duration = rng.integers(0, 7, size=n)
     pairs = set()
@@ -56,8 +56,9 @@ def flat_network(seed: int, n: int = 30):
         Crew("C2", "Plasterers", 2, 0),
     ]
     not_before = np.full(n, np.iinfo(np.int64).min, dtype=np.int64)
-    not_before[n // 2] = 10
-    not_before[n - 3] = 25
+    if dates:
+        not_before[n // 2] = 10
+        not_before[n - 3] = 25
     return build_network(
         name=f"flat {seed}",
         start=START,
@@ -202,6 +203,99 @@ def test_compiled_generations_give_checked_schedules(seed):
     starts = {net.keys[i]: tl.date(tl.day(tl.cal[i], p)) for i, p in enumerate(got.pos)}
     ends = {net.keys[i]: tl.date(tl.finish_day(i, p)) for i, p in enumerate(got.pos)}
     assert check_schedule(net, starts, finishes=ends) == []
+
+
+def _checked(net, tl: Timeline, pos) -> list:
+    starts = {net.keys[i]: tl.date(tl.day(tl.cal[i], p)) for i, p in enumerate(pos)}
+    ends = {net.keys[i]: tl.date(tl.finish_day(i, p)) for i, p in enumerate(pos)}
+    return check_schedule(net, starts, finishes=ends)
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_schedules_built_from_the_finish_back_pass_the_checker(seed):
+    # Lists decoded and improved on the turned problem, turned back: every
+    # relation type with lags, the crew away for a week, holidays.
+    net = flat_network(seed, n=40, dates=False)
+    tl, _ = _timeline(net)
+    assert turns(tl)
+    roomy = Decoder(tl, tl.horizon)
+    first = roomy.decode(list(tl.order))
+    assert first is not None
+    # A tight room, so that schedules from the finish back reach the start
+    # and the week the electricians are away.
+    dec = Decoder(tl, roomy.finish_of(first) + 4)
+    twin = dec.turned()
+    assert twin is not None
+    assert twin.turn(dec.turn(first)) == first  # the map is its own inverse
+    lft = [-float(x) for x in dec.turn(first)]
+    rng = random.Random(seed)
+    fitted = 0
+    for _ in range(40):
+        order = _sample(twin, [x + rng.uniform(-8.0, 8.0) for x in lft], rng)
+        back = twin.decode(order)
+        if back is None:
+            continue
+        fitted += 1
+        assert _checked(net, tl, twin.turn(back)) == []
+        better, finish = twin.improve(back)
+        # Finish days of the turned problem: positions on an every-day axis.
+        ends = [p + max(d - 1, 0) for p, d in zip(back, twin.dur, strict=True)]
+        assert finish <= max(ends)
+        assert _checked(net, tl, twin.turn(better)) == []
+    assert fitted > 0
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_the_search_from_the_finish_is_checked_and_no_longer_than_its_seed(seed):
+    net = flat_network(seed, n=40, dates=False)
+    tl, lft = _timeline(net)
+    dec = Decoder(tl, tl.horizon)
+    first = dec.improve(dec.decode(list(tl.order)))
+    kwargs = dict(limit=tl.horizon, seeds=[first[0]], population=12, seed=seed)
+    runs = [
+        genetic_schedule(tl, lft, generations=10, local_steps=200, turn=True, **kwargs)
+        for _ in range(2)
+    ]
+    assert runs[0] == runs[1]  # the same seed, the same schedule
+    got = runs[0]
+    assert got is not None
+    assert got.finish <= first[1]
+    assert got.finish == dec.finish_of(list(got.pos))
+    assert _checked(net, tl, got.pos) == []
+
+
+def test_problems_that_cannot_be_turned_are_left_to_the_search_from_the_start():
+    # A not-before date later than the rest would turn into a deadline; work
+    # under way is fixed; two calendars with calendar-day lags do not compile.
+    dated, _ = _timeline(flat_network(0, dates=True))
+    pinned, lft = _timeline(flat_network(0, dates=False))
+    pinned.pinned[0] = Decoder(pinned, pinned.horizon).decode(list(pinned.order))[0]
+    two, _ = _timeline(random_network(3, capacity=2))
+    for tl in (dated, pinned, two):
+        assert not turns(tl)
+        assert Decoder(tl, tl.horizon).turned() is None
+    got = genetic_schedule(pinned, lft, limit=pinned.horizon, generations=2, turn=True)
+    assert got is None
+
+
+@pytest.mark.parametrize("dates", [False, True])
+def test_the_levelling_runs_the_search_from_the_finish_where_it_turns(dates):
+    # 60 fit-out activities on tight crews: the short first solve does not
+    # prove them, so the genetic search runs, and beside it the search from
+    # the finish back, or CP-SAT where a not-before date keeps the problem
+    # from turning round.
+    net = flat_network(4, n=60, dates=dates)
+    seen = []
+    result = lv.level(
+        net, time_limit=4, on_progress=lambda f, b, t: seen.append((f, t))
+    )
+    phases = [s.phase for s in result.stats]
+    assert "genetic" in phases
+    beside = "beside genetic" if dates else "genetic from the finish"
+    assert beside in phases
+    assert ("genetic from the finish" in phases) is not dates
+    assert check_schedule(net, result.starts, finishes=result.finishes) == []
+    assert seen and seen[-1][0] == result.finish
 
 
 def test_warm_up_compiles_every_pass():
