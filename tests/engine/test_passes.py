@@ -298,6 +298,34 @@ def test_the_levelling_runs_the_search_from_the_finish_where_it_turns(dates):
     assert seen and seen[-1][0] == result.finish
 
 
+def test_the_search_from_the_finish_ends_when_the_other_fails(monkeypatch):
+    # A lost run raises from the progress callback inside the search from
+    # the start; the search beside it must not go on burning a core.
+    import threading
+    import time
+
+    real = lv._genetic_hint
+    ended = threading.Event()
+    took = []
+
+    def hint(*args, turn=False, **kwargs):
+        if not turn:
+            time.sleep(0.2)
+            raise RuntimeError("the run was lost")
+        t0 = time.perf_counter()
+        try:
+            return real(*args, turn=turn, **kwargs)
+        finally:
+            took.append(time.perf_counter() - t0)
+            ended.set()
+
+    monkeypatch.setattr(lv, "_genetic_hint", hint)
+    with pytest.raises(RuntimeError, match="lost"):
+        lv.level(flat_network(4, n=60, dates=False), time_limit=8)
+    assert ended.wait(5)
+    assert took[0] < 1.5  # its own time would have been about 6.5 s
+
+
 def test_warm_up_compiles_every_pass():
     passes.warm_up()
     assert passes.is_warm()
