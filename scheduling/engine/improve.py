@@ -933,17 +933,20 @@ def genetic_schedule(
     def out_of_time() -> bool:
         return past(genetic_wall, min(pool)[0] if pool else None)
 
-    told = [_INF, _INF]  # the last finish heard of: on this search, as told
+    told = [_INF, _INF]  # the best finish met: on this search, turned back
+    kept: list[list[int]] = []  # with turn: that schedule, turned back
 
     def tell(pos: list[int], finish: int) -> None:
-        if on_better is None or finish >= told[0]:
+        if finish >= told[0] or (on_better is None and not turn):
             return
         told[0] = finish
         if turn:
-            finish = ahead.improve(dec.turn(pos), rounds)[1]
+            pos, finish = ahead.improve(dec.turn(pos), rounds)
         if finish < told[1]:
             told[1] = finish
-            on_better(finish)
+            kept[:] = [pos]
+            if on_better is not None:
+                on_better(finish)
 
     for pos in seeds:
         keep(list(pos))
@@ -998,7 +1001,10 @@ def genetic_schedule(
             better=tell,
         )
     if turn:
-        pos, finish = ahead.improve(dec.turn(pos), rounds)
+        # The best of the schedules met, each turned back and justified: the
+        # one reported last (a sooner finish on the turned problem need not
+        # justify to a sooner one).
+        pos, finish = kept[0], told[1]
     return Schedule(tuple(pos), finish)
 
 
