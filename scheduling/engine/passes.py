@@ -601,6 +601,136 @@ def breed(
     return orders, places, finish, ok
 
 
+# -- steps of the local search ------------------------------------------------
+
+
+@_jit
+def _shift(order, where, in_ptr, in_src, out_ptr, out_dst):
+    """Move one activity, drawn at random, to a random other place between
+    its last predecessor and its first successor (see
+    :func:`.improve._shift`); ``where[i]`` is ``i``'s index in ``order`` and
+    is kept so."""
+    n = order.shape[0]
+    at = np.random.randint(0, n)
+    i = order[at]
+    lo = 0
+    for x in range(in_ptr[i], in_ptr[i + 1]):
+        lo = max(lo, where[in_src[x]] + 1)
+    hi = n
+    for x in range(out_ptr[i], out_ptr[i + 1]):
+        hi = min(hi, where[out_dst[x]])
+    if hi - lo <= 1:
+        return
+    to = np.random.randint(lo, hi - 1)
+    if to >= at:
+        to += 1
+    if to > at:
+        for x in range(at, to):
+            order[x] = order[x + 1]
+            where[order[x]] = x
+    else:
+        for x in range(at, to, -1):
+            order[x] = order[x - 1]
+            where[order[x]] = x
+    order[to] = i
+    where[i] = to
+
+
+@_jit
+def shift_steps(
+    order,
+    pos,
+    finish,
+    steps,
+    moves,
+    seed,
+    rounds,
+    hi,
+    dur,
+    cal,
+    lb,
+    pin,
+    in_ptr,
+    in_src,
+    in_off,
+    out_ptr,
+    out_dst,
+    out_off,
+    need_ptr,
+    need_k,
+    need_u,
+    base,
+    row_len,
+    dtab,
+    wtab,
+    pad,
+):
+    """Up to ``steps`` steps of the local search of
+    :func:`.improve.shift_search` from the schedule ``pos`` (finish day
+    ``finish``, list ``order`` in its start order): each moves one to
+    ``moves`` activities of the list (:func:`_shift`), decodes and improves
+    it, and takes the result when it finishes no later. Returns the steps
+    taken, the current list, positions and finish; it returns early, after
+    the step, when a schedule finishes sooner than ``finish``. ``seed``
+    seeds Numba's own generator."""
+    np.random.seed(seed)
+    n = order.shape[0]
+    child = np.empty(n, dtype=np.int64)
+    where = np.empty(n, dtype=np.int64)
+    start = finish
+    for step in range(steps):
+        child[:] = order
+        for x in range(n):
+            where[child[x]] = x
+        for _ in range(np.random.randint(1, moves + 1)):
+            _shift(child, where, in_ptr, in_src, out_ptr, out_dst)
+        got = decode(
+            child,
+            dur,
+            lb,
+            hi,
+            in_ptr,
+            in_src,
+            in_off,
+            need_ptr,
+            need_k,
+            need_u,
+            base,
+            row_len,
+        )
+        if got[0] == -INF:
+            continue
+        got, got_finish = improve(
+            got,
+            rounds,
+            dur,
+            cal,
+            lb,
+            pin,
+            in_ptr,
+            in_src,
+            in_off,
+            out_ptr,
+            out_dst,
+            out_off,
+            need_ptr,
+            need_k,
+            need_u,
+            base,
+            row_len,
+            dtab,
+            wtab,
+            pad,
+        )
+        if got_finish <= finish:
+            pos = got
+            finish = got_finish
+            order = order_of(pos, dur, cal, in_ptr, out_ptr, out_dst, dtab, pad)
+            if finish < start:
+                return step + 1, order, pos, finish
+    return steps, order, pos, finish
+
+
 _warm = False
 
 
@@ -657,6 +787,9 @@ def warm_up() -> None:
         tab,
         0,
     )
+    shift_steps(
+        order, pos, 3, 2, 6, 1, 1 << 30, hi, dur, zero, zero, pin, *links, tab, tab, 0
+    )
     _warm = True
 
 
@@ -669,5 +802,6 @@ __all__ = [
     "forward",
     "improve",
     "order_of",
+    "shift_steps",
     "warm_up",
 ]

@@ -22,7 +22,13 @@ from scheduling.engine import Crew, build_network, passes
 from scheduling.engine import levelling as lv
 from scheduling.engine.checker import check_schedule
 from scheduling.engine.heuristic import Timeline
-from scheduling.engine.improve import Decoder, _sample, genetic_schedule, turns
+from scheduling.engine.improve import (
+    Decoder,
+    _sample,
+    genetic_schedule,
+    shift_search,
+    turns,
+)
 from scheduling.engine.psplib import datasets_dir, load_instance
 
 from .test_levelling import FIVE, START, random_network
@@ -326,10 +332,104 @@ def test_the_search_from_the_finish_ends_when_the_other_fails(monkeypatch):
     assert took[0] < 1.5  # its own time would have been about 6.5 s
 
 
+@pytest.mark.parametrize("seed", range(4))
+def test_a_compiled_shift_keeps_the_list_precedence_feasible(seed):
+    net = flat_network(seed, n=40)
+    tl, _ = _timeline(net)
+    dec = Decoder(tl, tl.horizon)
+    first = dec.decode(list(tl.order))
+    order = np.array(dec.order_of(first), dtype=np.int64)
+    where = np.argsort(order)
+    lists = set()
+    for _ in range(300):
+        passes._shift(order, where, dec.in_ptr, dec.in_src, dec.out_ptr, dec.out_dst)
+        assert sorted(order.tolist()) == list(range(tl.size))
+        assert (where[order] == np.arange(tl.size)).all()
+        assert all(where[r.pred] < where[r.succ] for r in tl.relations)
+        lists.add(tuple(order.tolist()))
+    assert len(lists) > 50
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_the_compiled_local_search_is_checked_and_never_longer(seed):
+    # All four relation types with lags, a crew away for a week, not-before
+    # dates: every schedule it reports passes the independent checker.
+    net = flat_network(seed, n=40)
+    tl, _ = _timeline(net)
+    dec = Decoder(tl, tl.horizon)
+    assert dec.compiled
+    start = dec.decode(list(tl.order))
+    before = dec.finish_of(start)
+    heard: list[tuple[list[int], int]] = []
+    runs = [
+        shift_search(
+            dec,
+            list(start),
+            before,
+            random.Random(seed),
+            steps=600,
+            better=lambda pos, finish: heard.append((pos, finish)),
+        )
+        for _ in range(2)
+    ]
+    assert runs[0] == runs[1]  # the same seed, the same schedule
+    pos, finish = runs[0]
+    assert finish <= before
+    assert finish == dec.finish_of(pos)
+    assert _checked(net, tl, pos) == []
+    # Each sooner finish was reported, in order, the last one returned.
+    days = [f for _, f in heard[: len(heard) // 2]]
+    assert days == sorted(set(days), reverse=True)
+    assert all(f < before for f in days)
+    if days:
+        assert heard[len(days) - 1] == (pos, finish)
+    for got, _ in heard:
+        assert _checked(net, tl, got) == []
+    # A chunk of steps walks only to schedules that finish no later.
+    steps, order, now, got = passes.shift_steps(
+        np.array(dec.order_of(pos), dtype=np.int64),
+        np.array(pos, dtype=np.int64),
+        finish,
+        300,
+        6,
+        seed,
+        1 << 30,
+        dec.a_hi,
+        *dec._all_args(),
+    )
+    assert got <= finish
+    assert steps == 300 or got < finish  # it stops early only on a gain
+    assert got == dec.finish_of(now.tolist())
+    assert order.tolist() == dec.order_of(now.tolist())
+    assert _checked(net, tl, now.tolist()) == []
+
+
+def test_the_compiled_local_search_asks_whether_to_stop():
+    net = flat_network(2, n=40)
+    tl, _ = _timeline(net)
+    dec = Decoder(tl, tl.horizon)
+    start = dec.decode(list(tl.order))
+    before = dec.finish_of(start)
+    asked: list[int] = []
+
+    def done(best: int) -> bool:
+        asked.append(best)
+        return len(asked) > 2
+
+    shift_search(dec, start, before, random.Random(0), steps=1 << 40, done=done)
+    assert len(asked) == 3  # two chunks of steps, then the stop
+
+
 def test_warm_up_compiles_every_pass():
     passes.warm_up()
     assert passes.is_warm()
-    for fn in (passes.decode, passes.improve, passes.order_of, passes.breed):
+    for fn in (
+        passes.decode,
+        passes.improve,
+        passes.order_of,
+        passes.breed,
+        passes.shift_steps,
+    ):
         assert fn.signatures
 
 
