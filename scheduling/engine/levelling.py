@@ -2013,7 +2013,13 @@ SIDE_SOLVE = True
 #: of 48 in four runs (44, 44, 45, 44 with CP-SAT beside). J120 gives some
 #: back at 10 s, 1.21 % above the best known against 1.04 % (both within the
 #: 2 % target), and gains at 60 s: 0.90 % and 31/60 at the best known against
-#: 0.92 % and 29/60.
+#: 0.92 % and 29/60. Tried and left out: the two searches leaving their
+#: best schedules for each other (each taking up the other's when sooner,
+#: into its population or as its local search's current schedule): on J60
+#: groups 9, 13, 25, 29 and 45 (seeds 0-7, 10 s) 32 days over the best known
+#: summed and 15 of 40 at it, against 31 and 13 apart, within seed noise;
+#: both workers searching from the finish back (seeds apart): on groups 9,
+#: 13, 21, 25, 29, 45 (seeds 0-3) 17 days and 10 of 24, against 14 and 11.
 TURNED_SIDE = True
 #: Generations of the genetic search: a cap well above what the time allows
 #: (the wall limit ends it). Compiled, the search makes 8,000-20,000
