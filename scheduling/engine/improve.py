@@ -880,6 +880,7 @@ def _shift_search_compiled(
     best, best_finish = pos, finish
     order = np.asarray(dec.order_of(pos), dtype=np.int64)
     now = np.asarray(pos, dtype=np.int64)
+    arrays = (dec.a_hi, *dec._all_args())
     left = steps
     while left > 0:
         if done is not None and done(best_finish):
@@ -892,8 +893,7 @@ def _shift_search_compiled(
             moves,
             rng.getrandbits(32),
             min(rounds, 1 << 62),
-            dec.a_hi,
-            *dec._all_args(),
+            *arrays,
         )
         left -= int(taken)
         finish = int(got)

@@ -1812,17 +1812,7 @@ def level(
             # Ends the search from the finish too, also when a progress
             # report stopped this one (a lost run raises from the callback).
             ahead_done.set()
-        stats.append(
-            SolveStats(
-                "genetic",
-                "FEASIBLE" if found is not None else "UNKNOWN",
-                time.perf_counter() - t0,
-                0,
-                0,
-                found[1] if found is not None else None,
-                None,
-            )
-        )
+        stats.append(_search_stats("genetic", found, time.perf_counter() - t0))
         if thread is not None:
             thread.join()
         if turned:
@@ -1830,14 +1820,8 @@ def level(
             if isinstance(other, BaseException):
                 raise other
             stats.append(
-                SolveStats(
-                    "genetic from the finish",
-                    "FEASIBLE" if other is not None else "UNKNOWN",
-                    time.perf_counter() - t0,
-                    0,
-                    0,
-                    other[1] if other is not None else None,
-                    None,
+                _search_stats(
+                    "genetic from the finish", other, time.perf_counter() - t0
                 )
             )
             if other is not None and (found is None or other[1] < found[1]):
@@ -2150,6 +2134,22 @@ def _genetic_hint(
     if seeded and finish >= min(seeded):
         return None
     return pos, finish
+
+
+def _search_stats(
+    phase: str, found: tuple[list[int], int] | None, seconds: float
+) -> SolveStats:
+    """The ``stats`` row of a genetic search: its finish day as the
+    objective, no bound, no branches."""
+    return SolveStats(
+        phase,
+        "FEASIBLE" if found is not None else "UNKNOWN",
+        seconds,
+        0,
+        0,
+        found[1] if found is not None else None,
+        None,
+    )
 
 
 def _better(a: _Solved, b: _Solved) -> _Solved:

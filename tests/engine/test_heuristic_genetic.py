@@ -168,65 +168,60 @@ def test_shift_search_is_checked_and_never_longer(seed):
     assert check_schedule(net, starts, finishes=finishes) == []
 
 
-@pytest.mark.skipif(
+needs_j60 = pytest.mark.skipif(
     not (datasets_dir() / "solutions" / "j60hrs.sm").is_file(),
     reason="PSPLIB data set not found",
 )
+
+
+def _j60_runs(group: int, seed: int, runs: dict) -> tuple[int, dict]:
+    """The best known makespan of PSPLIB J60 instance ``group``-1
+    (j60hrs.sm) and, for each key of ``runs``, the genetic search (population
+    250, 40 generations) from the heuristic's schedule with those extra
+    arguments; each run's best schedule passes the checker."""
+    if passes.njit is None:
+        pytest.skip("Numba is not installed: too many schedules for the Python passes")
+    best = load_solutions("j60hrs.sm")[(group, 1)]
+    inst, plan, tl, lft = _psplib(60, group)
+    got = {
+        key: genetic_schedule(
+            tl,
+            lft,
+            limit=tl.horizon,
+            seeds=[list(plan.heuristic.pos)],
+            population=250,
+            generations=40,
+            seed=seed,
+            **kwargs,
+        )
+        for key, kwargs in runs.items()
+    }
+    for run in got.values():
+        starts, finishes = _dates(tl, run.pos)
+        assert check_schedule(inst.network, starts, finishes=finishes) == []
+    return best, got
+
+
+@needs_j60
 def test_the_local_search_reaches_the_best_known_finish_of_a_j60_instance():
     # PSPLIB j609_1: best known makespan 87 (j60hrs.sm, Kolisch & Sprecher
     # 1996/97). Seed 1 of 0-2 (this machine): 40 generations alone end at
     # 88, 88, 87; followed by 20,000 steps of the local search at 88, 87, 87.
-    if passes.njit is None:
-        pytest.skip("Numba is not installed: too many schedules for the Python passes")
-    best = load_solutions("j60hrs.sm")[(9, 1)]
-    inst, plan, tl, lft = _psplib(60, 9)
-    runs = {
-        steps: genetic_schedule(
-            tl,
-            lft,
-            limit=tl.horizon,
-            seeds=[list(plan.heuristic.pos)],
-            population=250,
-            generations=40,
-            local_steps=steps,
-            seed=1,
-        )
-        for steps in (0, 20_000)
-    }
+    best, runs = _j60_runs(
+        9, 1, {steps: {"local_steps": steps} for steps in (0, 20_000)}
+    )
     assert runs[0].finish == best + 1
     assert runs[20_000].finish == best
-    starts, finishes = _dates(tl, runs[20_000].pos)
-    assert check_schedule(inst.network, starts, finishes=finishes) == []
 
 
-@pytest.mark.skipif(
-    not (datasets_dir() / "solutions" / "j60hrs.sm").is_file(),
-    reason="PSPLIB data set not found",
-)
+@needs_j60
 def test_the_search_from_the_finish_reaches_a_best_known_the_other_misses():
     # PSPLIB j6029_1: best known makespan 103 (j60hrs.sm, Kolisch & Sprecher
     # 1996/97). With the same budget (40 generations, 8,000 local steps),
-    # seeds 0-3 (this machine): from the start 106 every time; from the
-    # finish back 103, 104, 104, 103.
-    if passes.njit is None:
-        pytest.skip("Numba is not installed: the search from the finish is compiled")
-    best = load_solutions("j60hrs.sm")[(29, 1)]
-    inst, plan, tl, lft = _psplib(60, 29)
-    runs = {
-        turn: genetic_schedule(
-            tl,
-            lft,
-            limit=tl.horizon,
-            seeds=[list(plan.heuristic.pos)],
-            population=250,
-            generations=40,
-            local_steps=8_000,
-            seed=0,
-            turn=turn,
-        )
-        for turn in (False, True)
-    }
+    # seeds 0-3 (this machine, local search compiled): from the start 106
+    # every time; from the finish back 103, 104, 103, 103.
+    best, runs = _j60_runs(
+        29, 0, {turn: {"local_steps": 8_000, "turn": turn} for turn in (False, True)}
+    )
     assert runs[False].finish == best + 3
     assert runs[True].finish == best
-    starts, finishes = _dates(tl, runs[True].pos)
-    assert check_schedule(inst.network, starts, finishes=finishes) == []
