@@ -114,6 +114,9 @@ def test_pages_show_a_levelled_schedule_when_one_is_served(
     assert "levelled schedule (optimal)" in overview
     bars = client.get(page(demo, "bars")).content.decode()
     assert 'class="early-track"' in bars
+    # The levelled bars' finish is the levelled one, not the critical path's.
+    finish = demo_levelled["levelling"]["finish"]
+    assert f"levelled dates; levelled finish {finish}" in bars
 
 
 def test_overview_shows_finish_percent_complete_and_driving_path(demo):
