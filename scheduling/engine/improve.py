@@ -241,8 +241,14 @@ class Decoder:
         self.a_dur = np.array(self.dur, dtype=i64)
         self.a_cal = np.array(self.cal, dtype=i64)
         self.a_lb = np.array(self.lb, dtype=i64)
+        # A pinned activity (work done or under way) may start nowhere but
+        # on its pin: a list that would push it later decodes to nothing.
         self.a_hi = np.array(
-            [tl.latest_for_end(i, self.limit) for i in range(n)], dtype=i64
+            [
+                min(tl.latest_for_end(i, self.limit), tl.pinned.get(i, _INF))
+                for i in range(n)
+            ],
+            dtype=i64,
         )
         self.a_pin = np.array([tl.pinned.get(i, -1) for i in range(n)], dtype=i64)
         self.in_ptr, self.in_src, self.in_off = _rows(self.lin_in)
@@ -560,11 +566,12 @@ class Decoder:
         pos = [0] * self.n
         tl = self.tl
         limit = self.limit
+        pinned = tl.pinned
         for i in order:
             p = self._lower(i, pos)
             if self.need[i]:
                 while True:
-                    if tl.end(i, p) > limit:
+                    if tl.end(i, p) > limit or p > pinned.get(i, p):
                         return None
                     q = self._fits_from(free, i, p)
                     if q == p:
@@ -573,7 +580,7 @@ class Decoder:
                         return None
                     p = q
                 self._take(free, i, p)
-            elif tl.end(i, p) > limit:
+            elif tl.end(i, p) > limit or p > pinned.get(i, p):
                 return None
             pos[i] = p
         return pos

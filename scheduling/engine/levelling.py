@@ -459,10 +459,17 @@ def _timeline(
     net: Network, horizon: int, es_day: list[int], pin_day: dict[int, int]
 ) -> tuple[Timeline, list[int]]:
     """The timeline to ``horizon``, its early start positions, pins set."""
+    tl = _pinned_timeline(net, horizon, pin_day)
+    return tl, [tl.pos(tl.cal[i], es_day[i]) for i in range(net.size)]
+
+
+def _pinned_timeline(net: Network, horizon: int, pin_day: dict[int, int]) -> Timeline:
+    """The timeline to ``horizon`` with the activities of ``pin_day`` pinned to
+    their days."""
     tl = build_timeline(net, horizon)
     if pin_day:
         tl = replace(tl, pinned={i: tl.pos(tl.cal[i], d) for i, d in pin_day.items()})
-    return tl, [tl.pos(tl.cal[i], es_day[i]) for i in range(net.size)]
+    return tl
 
 
 def _check_pinned_room(
@@ -2091,13 +2098,16 @@ def _genetic_hint(
     when it does not beat the best seed or leaves the model's windows.
 
     The search runs on a timeline twice as long as the model's, so that a
-    poor list can still be decoded (and improved) before it is judged.
+    poor list can still be decoded (and improved) before it is judged; work
+    done or under way is pinned there as in the model (without the pins every
+    schedule of a progressed network that moved such work fell outside the
+    windows and was thrown away).
     """
     tl = plan.tl
     net = plan.network
     n = tl.size
     cap = plan.limit if plan.limit is not None else 2 * plan.finish_max + 2
-    wide = tl if plan.limit is not None else build_timeline(net, cap + 1)
+    wide = tl if plan.limit is not None else _pinned_timeline(net, cap + 1, plan.pinned)
 
     def to_wide(pos: list[int]) -> list[int]:
         return [wide.pos(wide.cal[i], tl.day(tl.cal[i], pos[i])) for i in range(n)]

@@ -145,6 +145,34 @@ def test_compiled_passes_match_python_with_fixed_work_and_a_tight_limit(seed):
     assert 0 < fitted < 60
 
 
+@pytest.mark.parametrize("seed", range(3))
+def test_pinned_work_stays_on_its_pin_in_both_passes(seed):
+    # Work done or under way is pinned: the backward pass may not push it
+    # later, however much room it has, and a list that would place it later
+    # decodes to nothing (in Python and compiled alike).
+    net = flat_network(seed)
+    tl, _ = _timeline(net)
+    first = Decoder(tl, tl.horizon, compiled=False).decode(list(tl.order))
+    assert first is not None
+    finish = Decoder(tl, tl.horizon, compiled=False).finish_of(first)
+    late = Decoder(tl, tl.horizon, compiled=False).backward(list(first), finish)
+    slack = [i for i in range(tl.size) if late[i] > first[i]]
+    assert slack  # some work has room to move later
+    i = slack[0]
+    tl.pinned[i] = first[i]
+    for dec in _both(tl, tl.horizon):
+        assert dec.backward(list(first), finish)[i] == first[i]
+        # The pinned activity last in the list: others take its crews first.
+        order = [j for j in dec.order_of(first) if j != i]
+        at = max(
+            (order.index(r.succ) for r in tl.succs[i] if r.succ in order),
+            default=len(order),
+        )
+        order.insert(at, i)
+        got = dec.decode(order)
+        assert got is None or got[i] == first[i]
+
+
 @pytest.mark.skipif(
     not (datasets_dir() / "solutions" / "j30opt.sm").is_file(),
     reason=f"PSPLIB data set not found at {datasets_dir()}",
