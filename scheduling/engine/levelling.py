@@ -1090,7 +1090,11 @@ def _parameters(
 #: (21), a fixed earliest-start search beside ``no_lp`` (21), and a second
 #: genetic search in place of the side solve (19). Even told the best known
 #: finish as a hard limit, CP-SAT (10 s, 2 workers) found a schedule for only
-#: one of those six (j6041_1).
+#: one of those six (j6041_1); with the objective dropped too (a search for
+#: any schedule within the limit), none in 30 s for j6013_1, j6025_1 and
+#: j6045_1. Given 60 s, the levelling still ends one day over the best known
+#: on those three (113, 115, 97), the last sooner finish found within 2 s
+#: but for j6013_1 (at 19 s).
 PHASE_OPTIONS: dict[str, dict[str, object]] = {
     "improvement": {"subsolvers": ["default_lp", "no_lp"]},
 }
@@ -2034,7 +2038,11 @@ GENETIC = True
 #: After the genetic search, its best schedule goes to the local search of
 #: :func:`.improve.shift_search` for this share of the time (a cap on its
 #: steps well above what the time allows), each step moving one to
-#: LOCAL_MOVES activities.
+#: LOCAL_MOVES activities. Tried and left out: the local search taking
+#: turns, chunk by chunk, among the three best schedules of the genetic
+#: search instead of walking from the best alone (on PSPLIB J60 groups 9, 13,
+#: 25, 29, 45, seeds 0-5, 10 s, 2 workers: 19 days over the best known values
+#: summed and 12 of 30 runs at them, against 20 and 12).
 LOCAL_SHARE = 0.7
 LOCAL_STEPS = 1 << 40
 LOCAL_MOVES = 6
