@@ -2042,7 +2042,11 @@ GENETIC = True
 #: turns, chunk by chunk, among the three best schedules of the genetic
 #: search instead of walking from the best alone (on PSPLIB J60 groups 9, 13,
 #: 25, 29, 45, seeds 0-5, 10 s, 2 workers: 19 days over the best known values
-#: summed and 12 of 30 runs at them, against 20 and 12).
+#: summed and 12 of 30 runs at them, against 20 and 12); nor did each of
+#: the two searches as three short ones in turn, seeds apart, a third of
+#: the time each (same groups, seeds 0-11: 32 days and 31 of 60 runs at the
+#: best known, against 34 and 29; j6025_1 reached its 114 in 2 of 12 runs
+#: against 1).
 LOCAL_SHARE = 0.7
 LOCAL_STEPS = 1 << 40
 LOCAL_MOVES = 6
