@@ -1092,9 +1092,9 @@ def _parameters(
 #: finish as a hard limit, CP-SAT (10 s, 2 workers) found a schedule for only
 #: one of those six (j6041_1); with the objective dropped too (a search for
 #: any schedule within the limit), none in 30 s for j6013_1, j6025_1 and
-#: j6045_1. Given 60 s, the levelling still ends one day over the best known
-#: on those three (113, 115, 97), the last sooner finish found within 2 s
-#: but for j6013_1 (at 19 s).
+#: j6045_1. Given 60 s (seed 0), the levelling still ends one day over the
+#: best known on those three (113, 115, 97), the last sooner finish found
+#: within 2 s but for j6013_1 (at 19 s).
 PHASE_OPTIONS: dict[str, dict[str, object]] = {
     "improvement": {"subsolvers": ["default_lp", "no_lp"]},
 }
