@@ -12,6 +12,7 @@ genetic search passes the independent checker.
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as dt
 import random
 
@@ -151,26 +152,37 @@ def test_pinned_work_stays_on_its_pin_in_both_passes(seed):
     # later, however much room it has, and a list that would place it later
     # decodes to nothing (in Python and compiled alike).
     net = flat_network(seed)
-    tl, _ = _timeline(net)
-    first = Decoder(tl, tl.horizon, compiled=False).decode(list(tl.order))
+    tl, lft = _timeline(net)
+    free = Decoder(tl, tl.horizon, compiled=False)  # before any pin
+    first = free.decode(list(tl.order))
     assert first is not None
-    finish = Decoder(tl, tl.horizon, compiled=False).finish_of(first)
-    late = Decoder(tl, tl.horizon, compiled=False).backward(list(first), finish)
+    finish = free.finish_of(first)
+    late = free.backward(list(first), finish)
     slack = [i for i in range(tl.size) if late[i] > first[i]]
     assert slack  # some work has room to move later
-    i = slack[0]
-    tl.pinned[i] = first[i]
+    rng = random.Random(seed)
+    lists = [
+        _sample(free, [x + rng.uniform(-8.0, 8.0) for x in lft], rng) for _ in range(40)
+    ]
+    pushed = {
+        i
+        for pos in map(free.decode, lists)
+        if pos is not None
+        for i in range(tl.size)
+        if pos[i] > first[i]
+    }
+    assert pushed  # unpinned, some lists place some work later than first
+    # Pinned as the levelling pins work done: on its day, and not before it.
+    pins = {i: first[i] for i in (slack[0], min(pushed))}
+    lb = list(tl.lb_day)
+    for i, p in pins.items():
+        lb[i] = tl.day(tl.cal[i], p)
+    tl = dataclasses.replace(tl, pinned=pins, lb_day=tuple(lb))
     for dec in _both(tl, tl.horizon):
-        assert dec.backward(list(first), finish)[i] == first[i]
-        # The pinned activity last in the list: others take its crews first.
-        order = [j for j in dec.order_of(first) if j != i]
-        at = max(
-            (order.index(r.succ) for r in tl.succs[i] if r.succ in order),
-            default=len(order),
-        )
-        order.insert(at, i)
-        got = dec.decode(order)
-        assert got is None or got[i] == first[i]
+        assert dec.backward(list(first), finish)[slack[0]] == first[slack[0]]
+        for order in lists:
+            got = dec.decode(order)
+            assert got is None or all(got[i] == p for i, p in tl.pinned.items())
 
 
 @pytest.mark.skipif(
