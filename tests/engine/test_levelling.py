@@ -332,18 +332,14 @@ def test_progress_over_several_solves_is_news_on_one_clock():
         assert f1 < f0 or (b1 != b0)  # each line is news
 
 
-def test_the_genetic_search_leaves_work_done_and_under_way_where_it_is():
-    # The nightly re-run: the generated depot of 120 work packages is levelled
-    # (here by the serial heuristic, which is deterministic), then the work
-    # before the data date is recorded as done, or started, on its levelled
-    # dates. The genetic search must hold that work where it is (pinned): a
-    # schedule that moves it falls outside the model's windows and is thrown
-    # away, and the search's time is lost for the re-run.
+def _progressed_depot():
+    """The plan of the generated depot of 120 work packages (the worker
+    tests' network) levelled by the serial heuristic (deterministic), with the
+    work before Monday 22 March 2027 recorded as done, or started, on those
+    dates: the nightly re-run's situation."""
     from scheduling.engine.progress import rewrite
     from tests.worker.networks import crowded
 
-    if passes.njit is None:
-        pytest.skip("Numba is not installed: too few schedules for the Python passes")
     document = crowded(120, seed=11)
     before = lv._prepare(parse_network(document), "shortest", None, None)
     tl, first = before.tl, before.heuristic.pos
@@ -356,10 +352,19 @@ def test_the_genetic_search_leaves_work_done_and_under_way_where_it_is():
             a["actual_start"] = start.isoformat()
         if finish < data_date:
             a["actual_finish"] = finish.isoformat()
-    net = parse_network(document)
-    rw = rewrite(net)
+    rw = rewrite(parse_network(document))
     plan = lv._prepare(rw.work, "shortest", None, None, rw)
     assert len(plan.tl.pinned) > 20
+    return plan
+
+
+def test_the_genetic_search_leaves_work_done_and_under_way_where_it_is():
+    # The genetic search must hold work done or under way where it is
+    # (pinned): a schedule that moves it falls outside the model's windows
+    # and is thrown away, and the search's time is lost for the re-run.
+    if passes.njit is None:
+        pytest.skip("Numba is not installed: too few schedules for the Python passes")
+    plan = _progressed_depot()
     got = lv._genetic_hint(
         plan, [list(plan.heuristic.pos)], 1.0, 0, target=plan.logic_finish
     )
@@ -367,6 +372,29 @@ def test_the_genetic_search_leaves_work_done_and_under_way_where_it_is():
     pos, finish = got
     assert finish < plan.heuristic.finish
     assert {i: pos[i] for i in plan.tl.pinned} == plan.tl.pinned
+
+
+def test_the_genetic_search_draws_pinned_work_first(monkeypatch):
+    # Its first population is drawn by priority; pinned work drawn after
+    # other work on its crews would find them taken, and the list would
+    # decode to nothing (20 of these 30 lists when it was drawn like the rest).
+    import random
+
+    from scheduling.engine.improve import Decoder, _sample
+
+    plan = _progressed_depot()
+    handed = []
+    monkeypatch.setattr(
+        lv,
+        "genetic_schedule",
+        lambda tl, lft, *, limit, **kw: handed.append((tl, lft, limit)),
+    )
+    lv._genetic_hint(plan, [list(plan.heuristic.pos)], 0.1, 0, target=0)
+    tl, lft, limit = handed[0]
+    dec = Decoder(tl, limit)
+    rng = random.Random(0)
+    for _ in range(30):
+        assert dec.decode(_sample(dec, lft, rng)) is not None
 
 
 # --- explanations before the solve ----------------------------------------
