@@ -212,6 +212,13 @@ class Decoder:
         ]
         #: Every crew of the activity counts on its own calendar's positions.
         self.plain = [all(ax for _, _, ax in need) for need in self.need]
+        self.pinned = tl.pinned
+        # The latest start of each activity within the limit. A pinned
+        # activity (work done or under way) may start nowhere but on its pin:
+        # a list that would push it later decodes to nothing.
+        self.hi = [
+            min(tl.latest_for_end(i, limit), tl.pinned.get(i, _INF)) for i in range(n)
+        ]
         self.base: list[list[int]] = []
         for k, cap in enumerate(tl.capacity):
             size = tl.axis_limit(k, limit) + 1
@@ -241,15 +248,7 @@ class Decoder:
         self.a_dur = np.array(self.dur, dtype=i64)
         self.a_cal = np.array(self.cal, dtype=i64)
         self.a_lb = np.array(self.lb, dtype=i64)
-        # A pinned activity (work done or under way) may start nowhere but
-        # on its pin: a list that would push it later decodes to nothing.
-        self.a_hi = np.array(
-            [
-                min(tl.latest_for_end(i, self.limit), tl.pinned.get(i, _INF))
-                for i in range(n)
-            ],
-            dtype=i64,
-        )
+        self.a_hi = np.array(self.hi, dtype=i64)
         self.a_pin = np.array([tl.pinned.get(i, -1) for i in range(n)], dtype=i64)
         self.in_ptr, self.in_src, self.in_off = _rows(self.lin_in)
         self.out_ptr, self.out_dst, self.out_off = _rows(self.lin_out)
@@ -319,6 +318,8 @@ class Decoder:
         twin.a_cal = np.zeros(n, dtype=i64)
         twin.a_lb = np.array(twin.lb, dtype=i64)
         twin.a_hi = end - self.a_dur - self.a_lb
+        twin.hi = twin.a_hi.tolist()
+        twin.pinned = {}
         twin.a_pin = np.full(n, -1, dtype=i64)
         twin.in_ptr, twin.in_src, twin.in_off = _rows(twin.lin_in)
         twin.out_ptr, twin.out_dst, twin.out_off = _rows(twin.lin_out)
@@ -564,14 +565,12 @@ class Decoder:
             return None if got[0] == -passes.INF else got.tolist()
         free = [row[:] for row in self.base]
         pos = [0] * self.n
-        tl = self.tl
-        limit = self.limit
-        pinned = tl.pinned
+        hi = self.hi
         for i in order:
             p = self._lower(i, pos)
             if self.need[i]:
                 while True:
-                    if tl.end(i, p) > limit or p > pinned.get(i, p):
+                    if p > hi[i]:
                         return None
                     q = self._fits_from(free, i, p)
                     if q == p:
@@ -580,7 +579,7 @@ class Decoder:
                         return None
                     p = q
                 self._take(free, i, p)
-            elif tl.end(i, p) > limit or p > pinned.get(i, p):
+            elif p > hi[i]:
                 return None
             pos[i] = p
         return pos
@@ -728,11 +727,20 @@ class Decoder:
         return out
 
 
+#: The latest finish :func:`_sample` reads for pinned work: so far ahead of
+#: the rest that it is drawn as soon as it is eligible.
+_PINNED_FIRST = 1e12
+
+
 def _sample(dec: Decoder, lft: Sequence[float], rng: random.Random) -> list[int]:
     """A list by regret-based biased random sampling on ``lft`` (least first):
     an eligible activity is drawn with weight ``(max − own + 1)``, the regret
-    against the worst eligible value (Drexl 1991)."""
+    against the worst eligible value (Drexl 1991). Work done or under way
+    (pinned) is drawn first, as the serial heuristic takes it: drawn later, it
+    finds its crews taken and the list decodes to nothing."""
     tl = dec.tl
+    if dec.pinned:
+        lft = [-_PINNED_FIRST if i in dec.pinned else x for i, x in enumerate(lft)]
     waiting = list(dec.n_pred)
     eligible = [i for i in range(dec.n) if waiting[i] == 0]
     out = []

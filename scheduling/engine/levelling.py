@@ -2127,10 +2127,6 @@ def _genetic_hint(
     start = [to_wide(p) for p in seeds]
     late = [wide.pos(wide.cal[i], tl.day(tl.cal[i], plan.ls[i])) for i in range(n)]
     lft = [float(wide.finish_day(i, late[i])) for i in range(n)]
-    # Work done or under way first, as the serial heuristic takes it: drawn
-    # later, it finds its crews taken and the list decodes to nothing.
-    for i in plan.pinned:
-        lft[i] = -_PINNED_FIRST
     limit = wide.horizon if plan.limit is None else plan.limit + 1
     got = genetic_schedule(
         wide,
@@ -2160,11 +2156,6 @@ def _genetic_hint(
     if seeded and finish >= min(seeded):
         return None
     return pos, finish
-
-
-#: The latest finish the genetic search's sampling reads for pinned work:
-#: so far ahead of the rest that it is drawn as soon as it is eligible.
-_PINNED_FIRST = 1e12
 
 
 def _search_stats(
